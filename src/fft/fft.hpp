@@ -1,0 +1,108 @@
+// FFTW3 wrappers: serial 2D/3D transforms on caller buffers with a plan cache,
+// and FFTW3-MPI slab-decomposed 3D real fields. Conventions: forward is
+// e^{-ik·x}, nothing is normalised (an inverse after a forward multiplies by N).
+#pragma once
+#include <mpi.h>
+
+#include <array>
+#include <complex>
+#include <cstddef>
+#include <memory>
+#include <string>
+
+namespace spinflip::fft {
+
+using cfloat = std::complex<float>;
+using cdouble = std::complex<double>;
+enum class Direction { forward, inverse };
+
+/// fftw_malloc'd storage (SIMD-aligned), move-only.
+template <class T>
+class Buffer {
+ public:
+  Buffer() = default;
+  explicit Buffer(std::size_t n);
+  Buffer(Buffer&& other) noexcept;
+  Buffer& operator=(Buffer&& other) noexcept;
+  Buffer(const Buffer&) = delete;
+  Buffer& operator=(const Buffer&) = delete;
+  ~Buffer();
+  T* data() { return data_; }
+  const T* data() const { return data_; }
+  std::size_t size() const { return size_; }
+  T& operator[](std::size_t i) { return data_[i]; }
+  const T& operator[](std::size_t i) const { return data_[i]; }
+
+ private:
+  T* data_ = nullptr;
+  std::size_t size_ = 0;
+};
+
+// Serial transforms. Plans are made once per (shape, kind, placement,
+// alignment) and reused; planning is thread-safe, execution is re-entrant.
+// Buffers should come from Buffer<T> (aligned); in == out means in place
+// (r2c in place needs rows padded to 2(n_last/2+1) reals).
+void c2c_2d(std::size_t n0, std::size_t n1, const cfloat* in, cfloat* out, Direction d);
+void c2c_2d(std::size_t n0, std::size_t n1, const cdouble* in, cdouble* out, Direction d);
+void r2c_2d(std::size_t n0, std::size_t n1, const float* in, cfloat* out);    // out: n0 × (n1/2+1)
+void r2c_2d(std::size_t n0, std::size_t n1, const double* in, cdouble* out);
+void c2r_2d(std::size_t n0, std::size_t n1, const cfloat* in, float* out);    // destroys `in`
+void c2r_2d(std::size_t n0, std::size_t n1, const cdouble* in, double* out);
+void r2c_3d(const std::array<std::size_t, 3>& n, const float* in, cfloat* out);  // out: n0×n1×(n2/2+1)
+void r2c_3d(const std::array<std::size_t, 3>& n, const double* in, cdouble* out);
+void c2r_3d(const std::array<std::size_t, 3>& n, const cfloat* in, float* out);  // destroys `in`
+void c2r_3d(const std::array<std::size_t, 3>& n, const cdouble* in, double* out);
+void c2c_3d(const std::array<std::size_t, 3>& n, const cfloat* in, cfloat* out, Direction d);
+
+/// Threads FFTW may use inside one transform (default 1: ranks do the parallelism).
+void set_threads(int n);
+/// Load/save FFTW wisdom (optional; a missing file is not an error on load).
+void import_wisdom(const std::string& path);
+void export_wisdom(const std::string& path);
+
+/// A real 3D field of global shape n0 × n1 × n2 (axis 2 = line of sight),
+/// stored for in-place r2c: this rank holds the slab [local_start0,
+/// local_start0 + local_n0) of axis 0, rows padded to 2(n2/2+1) floats.
+/// On MPI_COMM_SELF it is the whole box and uses serial FFTW; on a larger
+/// communicator it uses FFTW-MPI. forward()/inverse() are collective on comm.
+/// In Fourier space the local block is local_n0 × n1 × (n2/2+1) modes with
+/// global axis-0 index local_start0 + i (FFTW-MPI non-transposed layout).
+class SlabField {
+ public:
+  SlabField(const std::array<std::size_t, 3>& global_shape, MPI_Comm comm);
+  SlabField(SlabField&&) noexcept;
+  SlabField& operator=(SlabField&&) noexcept;
+  ~SlabField();
+
+  const std::array<std::size_t, 3>& global_shape() const;
+  std::size_t local_n0() const;
+  std::size_t local_start0() const;
+  std::size_t padded_n2() const { return 2 * (global_shape()[2] / 2 + 1); }
+  std::size_t half_n2() const { return global_shape()[2] / 2 + 1; }
+  MPI_Comm comm() const;
+
+  float& real(std::size_t i_local, std::size_t j, std::size_t k) {
+    return real_data()[(i_local * global_shape()[1] + j) * padded_n2() + k];
+  }
+  float real(std::size_t i_local, std::size_t j, std::size_t k) const {
+    return real_data()[(i_local * global_shape()[1] + j) * padded_n2() + k];
+  }
+  cfloat& mode(std::size_t i_local, std::size_t j, std::size_t k_half) {
+    return complex_data()[(i_local * global_shape()[1] + j) * half_n2() + k_half];
+  }
+  float* real_data();
+  const float* real_data() const;
+  cfloat* complex_data();
+  const cfloat* complex_data() const;
+  std::size_t allocated_floats() const;  // for memory accounting
+
+  void forward();  // real → Fourier, unnormalised
+  void inverse();  // Fourier → real, unnormalised (divide by n0 n1 n2 yourself)
+  void fill(float value);
+
+ private:
+  struct Impl;
+  std::unique_ptr<Impl> impl_;
+};
+
+}  // namespace spinflip::fft

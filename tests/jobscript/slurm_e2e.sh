@@ -14,7 +14,9 @@ fail() { echo "FAIL: $*"; exit 1; }
 
 if ! command -v slurmctld >/dev/null || ! command -v slurmd >/dev/null || ! command -v sbatch >/dev/null; then
   echo "installing slurm-wlm"
-  DEBIAN_FRONTEND=noninteractive apt-get install -y slurm-wlm >/dev/null || fail "cannot install slurm-wlm"
+  export DEBIAN_FRONTEND=noninteractive
+  apt-get install -y -q slurm-wlm >/dev/null 2>&1 ||
+    { apt-get update -q >/dev/null && apt-get install -y -q slurm-wlm >/dev/null; } || fail "cannot install slurm-wlm"
 fi
 
 tmp=$(mktemp -d /tmp/spinflip-slurm.XXXXXX)

@@ -1,0 +1,505 @@
+#include "instrument/instrument.hpp"
+
+#include <fftw3.h>
+
+#include <algorithm>
+#include <cmath>
+#include <complex>
+#include <fstream>
+#include <map>
+#include <numbers>
+#include <sstream>
+#include <utility>
+#include <limits>
+#include <memory>
+#include <filesystem>
+
+#include "core/errors.hpp"
+
+namespace spinflip::instrument {
+namespace {
+
+constexpr double c_m_s = 299792458.0;
+constexpr double c_km_s = 299792.458;
+constexpr double nu21_MHz = 1420.405751768;
+constexpr double sidereal_day_s = 86164.0905;  // Earth rotation period (common practice)
+constexpr std::size_t min_wedge_chunk_cells = 8;
+
+using core::KeySpec;
+using core::ValueType;
+
+// Move-only owner of an FFTW plan.
+class Plan {
+ public:
+  explicit Plan(fftwf_plan p) : p_(p) {
+    if (!p_) throw InternalError("FFTW could not make a plan for the instrument transform");
+  }
+  Plan(Plan&& o) noexcept : p_(std::exchange(o.p_, nullptr)) {}
+  Plan& operator=(Plan&&) = delete;
+  Plan(const Plan&) = delete;
+  Plan& operator=(const Plan&) = delete;
+  ~Plan() {
+    if (p_) fftwf_destroy_plan(p_);
+  }
+  void run() const { fftwf_execute(p_); }
+  fftwf_plan get() const { return p_; }
+
+ private:
+  fftwf_plan p_;
+};
+
+struct FftwFree { void operator()(void* p) const { fftwf_free(p); } };
+
+std::string key(const std::string& scenario, const char* leaf) { return "scenarios." + scenario + "." + leaf; }
+
+}  // namespace
+
+void declare_keys(core::Schema& s) {
+  s.add_table("scenarios.*", "A named instrument scenario applied to every clean cone (resolution, noise, wedge).");
+  const std::string p = "scenarios.*.";
+  s.add({.path = p + "array", .type = ValueType::string, .default_value = std::string("builtin"),
+         .choices = {"none", "builtin", "csv"},
+         .doc = "station layout: none (every Fourier cell kept), the built-in core+outer generator, or a CSV file"});
+  s.add({.path = p + "array_file", .type = ValueType::string, .default_value = std::string(""),
+         .doc = "CSV of station east,north,up in metres (array = \"csv\"), relative to the campaign file"});
+  s.add({.path = p + "stations", .type = ValueType::integer, .default_value = std::int64_t{48}, .min = 2,
+         .max = 4096, .doc = "number of stations of the built-in layout"});
+  s.add({.path = p + "station_diameter_m", .type = ValueType::real, .default_value = 30.0, .unit = "m",
+         .min = 0.0, .min_exclusive = true, .doc = "station diameter (effective area π d²/4)"});
+  s.add({.path = p + "core_radius_m", .type = ValueType::real, .default_value = 200.0, .unit = "m", .min = 0.0,
+         .min_exclusive = true, .doc = "radius of the compact core (built-in layout, 60% of the stations)"});
+  s.add({.path = p + "outer_radius_m", .type = ValueType::real, .default_value = 1000.0, .unit = "m",
+         .min = 0.0, .min_exclusive = true, .doc = "outer radius of the sparse region (built-in layout)"});
+  s.add({.path = p + "latitude_deg", .type = ValueType::real, .default_value = -30.0, .unit = "deg",
+         .min = -90.0, .max = 90.0, .doc = "site latitude"});
+  s.add({.path = p + "declination_deg", .type = ValueType::real, .default_value = -30.0, .unit = "deg",
+         .min = -90.0, .max = 90.0, .doc = "declination of the tracked field"});
+  s.add({.path = p + "hours_per_day", .type = ValueType::real, .default_value = 6.0, .unit = "h", .min = 0.0,
+         .max = 24.0, .min_exclusive = true, .doc = "hours the field is tracked per day (centred on transit)"});
+  s.add({.path = p + "integration_s", .type = ValueType::real, .default_value = 60.0, .unit = "s", .min = 0.0,
+         .min_exclusive = true, .doc = "integration time of one snapshot"});
+  s.add({.path = p + "observing_hours", .type = ValueType::real, .default_value = 1000.0, .unit = "h",
+         .min = 0.0, .min_exclusive = true, .doc = "total observing time (days = observing_hours / hours_per_day)"});
+  s.add({.path = p + "receiver_temperature_K", .type = ValueType::real, .default_value = 100.0, .unit = "K",
+         .min = 0.0, .doc = "receiver temperature; T_sys = T_rcv + 60 K (ν/300 MHz)^-2.55"});
+  s.add({.path = p + "noise", .type = ValueType::boolean, .default_value = false,
+         .doc = "add a thermal-noise realisation (needs an array)"});
+  s.add({.path = p + "wedge", .type = ValueType::boolean, .default_value = false,
+         .doc = "remove the foreground wedge k∥ < m(z) k⊥ + buffer on the LOS chunks"});
+  s.add({.path = p + "wedge_angle_deg", .type = ValueType::real, .default_value = 90.0, .unit = "deg",
+         .min = 0.0, .max = 90.0, .doc = "angle θ of the wedge (90: horizon)"});
+  s.add({.path = p + "wedge_buffer_per_mpc", .type = ValueType::real, .default_value = 0.0, .unit = "1/Mpc",
+         .min = 0.0, .doc = "k∥ buffer added above the wedge line"});
+
+  s.add_table("slices", "2D images at a frequency cadence for the slice kernels.");
+  s.add({.path = "slices.cadence_MHz", .type = ValueType::real, .default_value = 5.0, .unit = "MHz", .min = 0.0,
+         .min_exclusive = true, .doc = "spacing of the slice centres, from the top of the band down"});
+  s.add({.path = "slices.width_MHz", .type = ValueType::real, .default_value = 0.5, .unit = "MHz", .min = 0.0,
+         .min_exclusive = true, .doc = "channel width each slice is averaged over"});
+  s.add_table("chunks", "3D sub-volumes along the line of sight for the 3D kernels and the wedge cut.");
+  s.add({.path = "chunks.bandwidth_MHz", .type = ValueType::real, .default_value = 8.0, .unit = "MHz", .min = 0.0,
+         .min_exclusive = true, .doc = "bandwidth of one chunk"});
+}
+
+// ---------------------------------------------------------------- arrays
+
+std::vector<Station> read_array_csv(const std::string& path) {
+  std::ifstream in(path);
+  if (!in) throw IoError("array_file '" + path + "': cannot be opened");
+  std::vector<Station> out;
+  std::string line;
+  std::size_t n = 0;
+  bool header_allowed = true;
+  while (std::getline(in, line)) {
+    ++n;
+    const auto first = line.find_first_not_of(" \t\r");
+    if (first == std::string::npos || line[first] == '#') continue;
+    std::string t = line.substr(first);
+    while (!t.empty() && (t.back() == '\r' || t.back() == ' ')) t.pop_back();
+    if (header_allowed && t == "east,north,up") { header_allowed = false; continue; }
+    header_allowed = false;
+    std::array<double, 3> v{};
+    std::stringstream ss(t);
+    std::string field;
+    int count = 0;
+    bool ok = true;
+    while (std::getline(ss, field, ',')) {
+      if (count >= 3) { ok = false; break; }
+      try {
+        std::size_t used = 0;
+        v[count] = std::stod(field, &used);
+        if (field.find_first_not_of(" \t", used) != std::string::npos || !std::isfinite(v[count])) ok = false;
+      } catch (const std::exception&) {
+        ok = false;
+      }
+      ++count;
+    }
+    if (!ok || count != 3)
+      throw InputError(path + ":" + std::to_string(n) + ": expected 'east,north,up' in metres (three numbers), got '" +
+                       t + "'");
+    for (const auto& s : out)
+      if (s.east_m == v[0] && s.north_m == v[1] && s.up_m == v[2])
+        throw InputError(path + ":" + std::to_string(n) + ": duplicate station position '" + t + "'");
+    out.push_back({v[0], v[1], v[2]});
+  }
+  if (out.size() < 2)
+    throw InputError(path + ": " + std::to_string(out.size()) + " station(s); an interferometer needs at least 2");
+  return out;
+}
+
+std::vector<Station> builtin_array(std::size_t stations, double core_radius_m, double outer_radius_m,
+                                   double station_diameter_m) {
+  // Sunflower (Vogel) spirals: a filled compact core with 60% of the stations and a
+  // sparser annulus out to outer_radius_m; deterministic, no two stations at one spot.
+  const std::size_t n_core = std::max<std::size_t>(2, stations * 3 / 5);
+  const std::size_t n_outer = stations - std::min(stations, n_core);
+  const double golden = std::numbers::pi * (3.0 - std::sqrt(5.0));
+  std::vector<Station> out;
+  for (std::size_t i = 0; i < std::min(stations, n_core); ++i) {
+    const double r = core_radius_m * std::sqrt((static_cast<double>(i) + 0.5) / static_cast<double>(n_core));
+    out.push_back({r * std::cos(golden * static_cast<double>(i)), r * std::sin(golden * static_cast<double>(i)), 0.0});
+  }
+  for (std::size_t i = 0; i < n_outer; ++i) {
+    const double f = (static_cast<double>(i) + 0.5) / static_cast<double>(n_outer);
+    const double r = std::sqrt(core_radius_m * core_radius_m + f * (outer_radius_m * outer_radius_m - core_radius_m * core_radius_m));
+    out.push_back({r * std::cos(golden * static_cast<double>(i) + 1.0), r * std::sin(golden * static_cast<double>(i) + 1.0), 0.0});
+  }
+  for (std::size_t i = 0; i < out.size(); ++i)
+    for (std::size_t j = i + 1; j < out.size(); ++j)
+      if (std::hypot(out[i].east_m - out[j].east_m, out[i].north_m - out[j].north_m) < station_diameter_m)
+        throw ConfigError("built-in array: " + std::to_string(stations) + " stations of " +
+                          std::to_string(station_diameter_m) + " m do not fit in core_radius_m = " +
+                          std::to_string(core_radius_m) + " / outer_radius_m = " + std::to_string(outer_radius_m) +
+                          " without overlapping; enlarge the radii or use fewer stations");
+  return out;
+}
+
+std::vector<std::array<double, 2>> snapshot_uv_m(const std::vector<Station>& st, double latitude_deg,
+                                                 double declination_deg, double ha) {
+  // Local (east, north, up) -> equatorial (X, Y, Z), then (u, v) for hour angle H and
+  // declination δ: Thompson, Moran & Swenson, Interferometry and Synthesis in Radio
+  // Astronomy, eqs. 4.1 and 4.4 (from memory).
+  const double phi = latitude_deg * std::numbers::pi / 180.0, dec = declination_deg * std::numbers::pi / 180.0;
+  const double sh = std::sin(ha), ch = std::cos(ha), sd = std::sin(dec), cd = std::cos(dec);
+  std::vector<std::array<double, 2>> out;
+  out.reserve(st.size() * (st.size() - 1) / 2);
+  for (std::size_t i = 0; i < st.size(); ++i)
+    for (std::size_t j = i + 1; j < st.size(); ++j) {
+      const double e = st[j].east_m - st[i].east_m, n = st[j].north_m - st[i].north_m, u = st[j].up_m - st[i].up_m;
+      const double X = std::cos(phi) * u - std::sin(phi) * n, Y = e, Z = std::sin(phi) * u + std::cos(phi) * n;
+      out.push_back({sh * X + ch * Y, -sd * ch * X + sd * sh * Y + cd * Z});
+    }
+  return out;
+}
+
+double wedge_slope(double distance_mpc, double hubble_km_s_mpc, double z, double angle_deg) {
+  return distance_mpc * hubble_km_s_mpc * std::sin(angle_deg * std::numbers::pi / 180.0) / (c_km_s * (1.0 + z));
+}
+
+double system_temperature_K(double receiver_K, double freq_MHz) {
+  return receiver_K + 60.0 * std::pow(freq_MHz / 300.0, -2.55);  // common practice
+}
+
+// ---------------------------------------------------------------- scenario
+
+namespace {
+// Frequency width of each LOS cell (Hz), from the neighbouring cell centres.
+std::vector<double> cell_bandwidth_Hz(const ConeGeometry& g) {
+  const std::size_t n = g.freq_MHz.size();
+  std::vector<double> out(n);
+  for (std::size_t k = 0; k < n; ++k) {
+    const std::size_t a = k == 0 ? 0 : k - 1, b = k + 1 == n ? n - 1 : k + 1;
+    out[k] = std::abs(g.freq_MHz[a] - g.freq_MHz[b]) / static_cast<double>(b - a) * 1e6;
+  }
+  return out;
+}
+
+void check_geometry(const ConeGeometry& g) {
+  const std::size_t n = g.shape[2];
+  if (g.shape[0] != g.shape[1] || g.shape[0] < 2 || n < 2 || g.z.size() != n || g.freq_MHz.size() != n ||
+      g.distance_mpc.size() != n || !(g.cell_mpc > 0))
+    throw InternalError("instrument: cone geometry inconsistent with its shape");
+}
+}  // namespace
+
+Scenario::Scenario(Settings settings, std::uint32_t index, std::vector<std::vector<float>> uv_time_s,
+                   std::vector<double> wedge_slopes, const ConeGeometry& g)
+    : settings_(std::move(settings)), index_(index), n_perp_(g.shape[0]), n_los_(g.shape[2]),
+      uv_time_(std::move(uv_time_s)), slopes_(std::move(wedge_slopes)) {
+  check_geometry(g);
+  const auto bw = cell_bandwidth_Hz(g);
+  const double area = std::numbers::pi * 0.25 * settings_.station_diameter_m * settings_.station_diameter_m;
+  sigma_unit_.resize(n_los_);
+  for (std::size_t k = 0; k < n_los_; ++k) {
+    // docs/instrument.md eq. (N3): σ of Re/Im of the pixel-sum DFT of one uv cell,
+    // times sqrt(t): 1e3 T_sys λ² / (A_e θ_pix² sqrt(2 Δν)).
+    const double lambda = c_m_s / (g.freq_MHz[k] * 1e6);
+    const double theta_pix = g.cell_mpc / g.distance_mpc[k];
+    sigma_unit_[k] = 1e3 * system_temperature_K(settings_.receiver_temperature_K, g.freq_MHz[k]) * lambda * lambda /
+                     (area * theta_pix * theta_pix * std::sqrt(2.0 * bw[k]));
+  }
+}
+
+core::Array2<float> Scenario::uv_time_s(std::size_t k) const {
+  core::Array2<float> out(n_perp_, n_perp_, std::numeric_limits<float>::infinity());
+  if (!uv_time_.empty()) std::copy(uv_time_[k].begin(), uv_time_[k].end(), out.data.begin());
+  return out;
+}
+
+double Scenario::noise_sigma_mK(std::size_t k, double t) const { return sigma_unit_[k] / std::sqrt(t); }
+
+void Scenario::apply(core::Array3<float>& cone, const ConeGeometry& g, const rng::EntryKey& key) const {
+  const std::size_t N = n_perp_, L = n_los_, H = N / 2 + 1;
+  if (cone.shape != g.shape || g.shape[0] != N || g.shape[2] != L)
+    throw InternalError("instrument: cone shape does not match the scenario's geometry");
+  std::unique_ptr<fftwf_complex, FftwFree> spec(fftwf_alloc_complex(N * H * L));
+  auto* S = reinterpret_cast<std::complex<float>*>(spec.get());
+  const int n = static_cast<int>(N), l = static_cast<int>(L), h = static_cast<int>(H);
+  // Transverse transforms of every LOS cell at once: layout [i][j_half][k], k contiguous.
+  fftw_iodim dims_r[2] = {{n, n * l, h * l}, {n, l, l}};
+  fftw_iodim how[1] = {{l, 1, 1}};
+  Plan fwd(fftwf_plan_guru_dft_r2c(2, dims_r, 1, how, cone.data.data(), spec.get(), FFTW_ESTIMATE));
+  fwd.run();
+
+  const rng::CounterRng rng(key, rng::noise_stream(index_));
+  const float norm = 1.0f / static_cast<float>(N * N);
+  for (std::size_t i = 0; i < N; ++i) {
+    const std::size_t ip = (N - i) % N;
+    for (std::size_t j = 0; j < H; ++j) {
+      const std::size_t jp = (N - j) % N;
+      const std::size_t full = i * N + j, partner = ip * N + jp;
+      std::complex<float>* row = S + (i * H + j) * L;
+      if (full == 0) {  // interferometers do not see the mean
+        std::fill(row, row + L, std::complex<float>(0));
+        continue;
+      }
+      const bool self_conjugate = full == partner;
+      for (std::size_t k = 0; k < L; ++k) {
+        const float t = uv_time_.empty() ? std::numeric_limits<float>::infinity() : uv_time_[k][full];
+        if (!(t > 0)) { row[k] = 0; continue; }
+        std::complex<float> v = row[k];
+        if (settings_.noise) {
+          // Keyed by the global (LOS cell, mode) index of the canonical member of the
+          // Hermitian pair, so ñ(-k) = conj ñ(k) whoever draws it.
+          const std::size_t canon = std::min(full, partner);
+          const auto z = rng.normal_pair(static_cast<std::uint64_t>(k) * N * N + canon);
+          const double sig = noise_sigma_mK(k, t);
+          std::complex<float> nz;
+          if (self_conjugate) nz = {static_cast<float>(std::sqrt(2.0) * sig * z[0]), 0.0f};
+          else nz = {static_cast<float>(sig * z[0]), static_cast<float>(sig * z[1] * (full == canon ? 1 : -1))};
+          v += nz;
+        }
+        row[k] = v * norm;
+      }
+    }
+  }
+
+  if (settings_.wedge) {
+    const std::size_t C = settings_.chunk_cells;
+    const double dk_perp = 2.0 * std::numbers::pi / (static_cast<double>(N) * g.cell_mpc);
+    std::map<std::size_t, std::pair<Plan, Plan>> plans;
+    for (std::size_t a = 0; a < L; a += C) {
+      const std::size_t len = std::min(C, L - a);
+      auto it = plans.find(len);
+      if (it == plans.end()) {
+        fftw_iodim d[1] = {{static_cast<int>(len), 1, 1}};
+        fftw_iodim hw[1] = {{static_cast<int>(N * H), l, l}};
+        fftwf_complex* p = spec.get() + a;
+        it = plans.emplace(len, std::pair<Plan, Plan>(
+                                    Plan(fftwf_plan_guru_dft(1, d, 1, hw, p, p, FFTW_FORWARD, FFTW_ESTIMATE)),
+                                    Plan(fftwf_plan_guru_dft(1, d, 1, hw, p, p, FFTW_BACKWARD, FFTW_ESTIMATE))))
+                 .first;
+      }
+      fftwf_complex* p = spec.get() + a;
+      fftwf_execute_dft(it->second.first.get(), p, p);
+      const double slope = slopes_[a + len / 2];
+      const double dk_par = 2.0 * std::numbers::pi / (static_cast<double>(len) * g.cell_mpc);
+      const float inv_len = 1.0f / static_cast<float>(len);
+      for (std::size_t i = 0; i < N; ++i)
+        for (std::size_t j = 0; j < H; ++j) {
+          const double kperp = dk_perp * std::hypot(static_cast<double>(core::fft_index(i, N)),
+                                                    static_cast<double>(core::fft_index(j, N)));
+          const double limit = slope * kperp + settings_.wedge_buffer_per_mpc;
+          std::complex<float>* row = S + (i * H + j) * L + a;
+          for (std::size_t m = 0; m < len; ++m) {
+            const double kpar = dk_par * std::abs(static_cast<double>(core::fft_index(m, len)));
+            row[m] = kpar < limit ? std::complex<float>(0) : row[m] * inv_len;
+          }
+        }
+      fftwf_execute_dft(it->second.second.get(), p, p);
+    }
+  }
+
+  fftw_iodim dims_c[2] = {{n, h * l, n * l}, {n, l, l}};
+  Plan inv(fftwf_plan_guru_dft_c2r(2, dims_c, 1, how, spec.get(), cone.data.data(), FFTW_ESTIMATE));
+  inv.run();
+}
+
+// ---------------------------------------------------------------- from config
+
+namespace {
+std::vector<std::vector<float>> grid_coverage(const std::vector<Station>& st, const Settings& s,
+                                              const ConeGeometry& g) {
+  const std::size_t N = g.shape[0], L = g.shape[2];
+  const long half = static_cast<long>((N - 1) / 2);  // |m| ≤ half keeps m and -m on the grid
+  const double omega = 2.0 * std::numbers::pi / sidereal_day_s;
+  const double track_s = s.hours_per_day * 3600.0;
+  const auto n_snap = static_cast<std::size_t>(std::max(1.0, std::floor(track_s / s.integration_s)));
+  const double days = s.observing_hours / s.hours_per_day;
+  const auto per_visit = static_cast<float>(s.integration_s * days);
+  std::vector<std::vector<std::array<double, 2>>> snaps(n_snap);
+  for (std::size_t t = 0; t < n_snap; ++t) {
+    const double ha = omega * ((static_cast<double>(t) + 0.5) * s.integration_s - 0.5 * track_s);
+    snaps[t] = snapshot_uv_m(st, s.latitude_deg, s.declination_deg, ha);
+  }
+  std::vector<std::vector<float>> out(L, std::vector<float>(N * N, 0.0f));
+  for (std::size_t k = 0; k < L; ++k) {
+    // Grid cells per metre of baseline: (ν/c) · (N Δ / D_c), since du = D_c / (N Δ).
+    const double scale = g.freq_MHz[k] * 1e6 / c_m_s * static_cast<double>(N) * g.cell_mpc / g.distance_mpc[k];
+    auto& cell = out[k];
+    for (const auto& snap : snaps)
+      for (const auto& b : snap) {
+        const long m1 = std::lround(b[0] * scale), m2 = std::lround(b[1] * scale);
+        if (std::abs(m1) > half || std::abs(m2) > half) continue;
+        const auto idx = [N](long a) { return static_cast<std::size_t>((a + static_cast<long>(N)) % static_cast<long>(N)); };
+        cell[idx(m1) * N + idx(m2)] += per_visit;
+        cell[idx(-m1) * N + idx(-m2)] += per_visit;  // the conjugate visibility
+      }
+  }
+  return out;
+}
+}  // namespace
+
+std::size_t chunk_cells(const core::Config& c, const ConeGeometry& g) {
+  check_geometry(g);
+  const double bw = c.real("chunks.bandwidth_MHz");
+  const double cell = std::abs(g.freq_MHz.front() - g.freq_MHz.back()) / static_cast<double>(g.shape[2] - 1);
+  const auto n = static_cast<std::size_t>(std::max(1.0, std::round(bw / cell)));
+  if (n > g.shape[2])
+    throw ConfigError(c.location("chunks.bandwidth_MHz") + ": chunks.bandwidth_MHz = " + core::to_text(c.value("chunks.bandwidth_MHz")) +
+                      " is wider than the cone's band of " + std::to_string(cell * static_cast<double>(g.shape[2])) + " MHz");
+  return n;
+}
+
+std::vector<Scenario> scenarios_from(const core::Config& c, const std::function<double(double)>& hubble,
+                                     const ConeGeometry& g) {
+  check_geometry(g);
+  std::vector<Scenario> out;
+  std::uint32_t index = 0;
+  for (const auto& name : c.table_names("scenarios")) {
+    Settings s;
+    s.name = name;
+    s.array = c.string(key(name, "array"));
+    s.station_diameter_m = c.real(key(name, "station_diameter_m"));
+    s.latitude_deg = c.real(key(name, "latitude_deg"));
+    s.declination_deg = c.real(key(name, "declination_deg"));
+    s.hours_per_day = c.real(key(name, "hours_per_day"));
+    s.integration_s = c.real(key(name, "integration_s"));
+    s.observing_hours = c.real(key(name, "observing_hours"));
+    s.receiver_temperature_K = c.real(key(name, "receiver_temperature_K"));
+    s.noise = c.boolean(key(name, "noise"));
+    s.wedge = c.boolean(key(name, "wedge"));
+    s.wedge_angle_deg = c.real(key(name, "wedge_angle_deg"));
+    s.wedge_buffer_per_mpc = c.real(key(name, "wedge_buffer_per_mpc"));
+    if (s.noise && s.array == "none")
+      throw ConfigError(c.location(key(name, "noise")) + ": " + key(name, "noise") +
+                        " = true needs an array (array = \"builtin\" or \"csv\"), not array = \"none\"");
+    if (s.integration_s > s.hours_per_day * 3600.0)
+      throw ConfigError(c.location(key(name, "integration_s")) + ": " + key(name, "integration_s") +
+                        " is longer than the daily track hours_per_day");
+    std::vector<Station> stations;
+    if (s.array == "csv") {
+      const std::string f = c.string(key(name, "array_file"));
+      if (f.empty())
+        throw ConfigError(c.location(key(name, "array")) + ": " + key(name, "array") +
+                          " = \"csv\" needs " + key(name, "array_file"));
+      std::filesystem::path path(f);
+      if (path.is_relative()) path = c.directory() / path;
+      stations = read_array_csv(path.string());
+    } else if (s.array == "builtin") {
+      stations = builtin_array(static_cast<std::size_t>(c.integer(key(name, "stations"))),
+                               c.real(key(name, "core_radius_m")), c.real(key(name, "outer_radius_m")),
+                               s.station_diameter_m);
+    }
+    std::vector<double> slopes(g.shape[2]);
+    for (std::size_t k = 0; k < slopes.size(); ++k)
+      slopes[k] = wedge_slope(g.distance_mpc[k], hubble(g.z[k]), g.z[k], s.wedge_angle_deg);
+    if (s.wedge) {
+      s.chunk_cells = chunk_cells(c, g);
+      if (s.chunk_cells < min_wedge_chunk_cells)
+        throw ConfigError(c.location("chunks.bandwidth_MHz") + ": " + key(name, "wedge") +
+                          " = true: a wedge cut needs chunks of at least " + std::to_string(min_wedge_chunk_cells) +
+                          " line-of-sight cells, chunks.bandwidth_MHz = " +
+                          core::to_text(c.value("chunks.bandwidth_MHz")) + " gives " + std::to_string(s.chunk_cells));
+    }
+    for (const char* leaf : {"array", "array_file", "stations", "station_diameter_m", "core_radius_m",
+                             "outer_radius_m", "latitude_deg", "declination_deg", "hours_per_day", "integration_s",
+                             "observing_hours", "receiver_temperature_K", "noise", "wedge", "wedge_angle_deg",
+                             "wedge_buffer_per_mpc"})
+      s.attributes.emplace_back(leaf, c.value(key(name, leaf)));
+    auto coverage = s.array == "none" ? std::vector<std::vector<float>>{} : grid_coverage(stations, s, g);
+    out.emplace_back(std::move(s), index++, std::move(coverage), std::move(slopes), g);
+  }
+  return out;
+}
+
+// ---------------------------------------------------------------- slices and chunks
+
+std::vector<Unit> slice_units(const core::Config& c, const ConeGeometry& g) {
+  check_geometry(g);
+  const double cadence = c.real("slices.cadence_MHz"), width = c.real("slices.width_MHz");
+  if (cadence < width)
+    throw ConfigError(c.location("slices.cadence_MHz") + ": slices.cadence_MHz = " + core::to_text(c.value("slices.cadence_MHz")) +
+                      " is finer than slices.width_MHz = " + core::to_text(c.value("slices.width_MHz")) +
+                      "; slices would overlap (allowed: cadence ≥ width)");
+  const auto& f = g.freq_MHz;  // decreasing with LOS index
+  std::vector<Unit> out;
+  for (double centre = f.front() - 0.5 * width; centre - 0.5 * width >= f.back() - 1e-9; centre -= cadence) {
+    std::size_t a = 0;
+    while (a < f.size() && f[a] >= centre + 0.5 * width) ++a;
+    std::size_t b = a;
+    while (b < f.size() && f[b] > centre - 0.5 * width) ++b;
+    if (b == a) {  // narrower than a cell: the nearest cell
+      a = static_cast<std::size_t>(std::min_element(f.begin(), f.end(), [&](double x, double y) {
+                                     return std::abs(x - centre) < std::abs(y - centre);
+                                   }) - f.begin());
+      b = a + 1;
+    }
+    out.push_back({a, b, centre, nu21_MHz / centre - 1.0});
+  }
+  return out;
+}
+
+std::vector<Unit> chunk_units(const core::Config& c, const ConeGeometry& g) {
+  const std::size_t n = chunk_cells(c, g);
+  std::vector<Unit> out;
+  for (std::size_t a = 0; a + n <= g.shape[2]; a += n) {
+    const std::size_t mid = a + n / 2;
+    out.push_back({a, a + n, g.freq_MHz[mid], g.z[mid]});
+  }
+  return out;
+}
+
+core::Array2<float> extract_slice(const core::Array3<float>& cone, const Unit& u) {
+  const std::size_t N0 = cone.shape[0], N1 = cone.shape[1];
+  core::Array2<float> out(N0, N1);
+  const double w = 1.0 / static_cast<double>(u.los_end - u.los_begin);
+  for (std::size_t i = 0; i < N0; ++i)
+    for (std::size_t j = 0; j < N1; ++j) {
+      double s = 0;
+      for (std::size_t k = u.los_begin; k < u.los_end; ++k) s += cone(i, j, k);
+      out(i, j) = static_cast<float>(s * w);
+    }
+  return out;
+}
+
+core::Array3<float> extract_chunk(const core::Array3<float>& cone, const Unit& u) {
+  const std::size_t N0 = cone.shape[0], N1 = cone.shape[1], n = u.los_end - u.los_begin;
+  core::Array3<float> out(N0, N1, n);
+  for (std::size_t i = 0; i < N0; ++i)
+    for (std::size_t j = 0; j < N1; ++j)
+      std::copy_n(&cone(i, j, u.los_begin), n, &out(i, j, 0));
+  return out;
+}
+
+}  // namespace spinflip::instrument

@@ -1,0 +1,167 @@
+// The [cone], [sources] and [spin_temperature] keys: declared once here.
+#include <cmath>
+#include <functional>
+#include <string>
+
+#include "core/errors.hpp"
+#include "cosmo/cosmology.hpp"
+#include "sim/lightcone.hpp"
+
+namespace spinflip::sim {
+
+using core::KeySpec;
+using core::ValueType;
+
+void declare_keys(core::Schema& s) {
+  s.add_table("cone", "Geometry of the simulated light cone (comoving grid, near end at the lowest redshift).");
+  s.add({.path = "cone.n_perp", .type = ValueType::integer, .default_value = std::int64_t{64}, .unit = "cells",
+         .min = 4, .max = 4096, .doc = "cells across each transverse axis"});
+  s.add({.path = "cone.n_los", .type = ValueType::integer, .default_value = std::int64_t{640}, .unit = "cells",
+         .min = 4, .max = 65536, .doc = "cells along the line of sight (the box is as long as the cone)"});
+  s.add({.path = "cone.cell_mpc", .type = ValueType::real, .default_value = 2.0, .unit = "Mpc", .min = 0.0,
+         .max = 100.0, .min_exclusive = true, .doc = "comoving cell size"});
+  s.add({.path = "cone.z_min", .type = ValueType::real, .default_value = 6.0, .min = 5.0, .max = 35.0,
+         .doc = "redshift of the near end of the cone"});
+  s.add({.path = "cone.z_max", .type = ValueType::real, .default_value = 10.0, .min = 5.0, .max = 35.0,
+         .doc = "highest redshift the cone must reach (n_los × cell_mpc must cover z_min..z_max)"});
+  s.add({.path = "cone.velocity_gradient", .type = ValueType::boolean, .default_value = true,
+         .doc = "include the linear line-of-sight velocity-gradient factor (1 + H⁻¹ dv_r/dr)⁻¹"});
+  s.add({.path = "cone.velocity_gradient_max", .type = ValueType::real, .default_value = 0.5, .min = 0.0,
+         .max = 0.9, .min_exclusive = true, .doc = "clamp on |H⁻¹ dv_r/dr| (linear theory breaks down beyond)"});
+
+  s.add_table("sources", "Ionizing sources and the excursion-set reionization model.");
+  s.add({.path = "sources.reionization", .type = ValueType::boolean, .default_value = true,
+         .doc = "false: a fully neutral cone (density and velocity terms only)"});
+  s.add({.path = "sources.model", .type = ValueType::string, .default_value = std::string("constant"),
+         .choices = {"constant", "mass_dependent"},
+         .doc = "constant ionizing efficiency, or star and escape fractions as power laws in halo mass"});
+  s.add({.path = "sources.ionizing_efficiency", .type = ValueType::real, .default_value = 30.0, .min = 1.0,
+         .max = 1e4, .min_exclusive = true,
+         .doc = "ionizing photons per collapsed baryon that reach the IGM (constant model)", .can_vary = true});
+  s.add({.path = "sources.min_virial_temperature_K", .type = ValueType::real, .default_value = 1e4, .unit = "K",
+         .min = 100.0, .max = 1e7, .doc = "smallest virial temperature of a halo hosting sources", .can_vary = true});
+  s.add({.path = "sources.bubble_radius_max_mpc", .type = ValueType::real, .default_value = 30.0, .unit = "Mpc",
+         .min = 0.0, .max = 500.0, .min_exclusive = true,
+         .doc = "largest smoothing radius of the excursion set (mean free path of ionizing photons)",
+         .can_vary = true});
+  s.add({.path = "sources.n_radii", .type = ValueType::integer, .default_value = std::int64_t{24}, .min = 2,
+         .max = 200, .doc = "smoothing radii, log-spaced from the bubble cap down to the cell"});
+  s.add({.path = "sources.partial_ionization", .type = ValueType::boolean, .default_value = true,
+         .doc = "cells not flagged ionized are ionized by their own-scale yield"});
+  s.add({.path = "sources.ionizing_photons_per_baryon", .type = ValueType::real, .default_value = 5000.0,
+         .min = 0.0, .max = 1e6, .min_exclusive = true,
+         .doc = "ionizing photons per stellar baryon (mass-dependent model)", .can_vary = true});
+  s.add({.path = "sources.star_fraction_at_1e10", .type = ValueType::real, .default_value = 0.05, .min = 0.0,
+         .max = 1.0, .min_exclusive = true,
+         .doc = "fraction of halo baryons in stars at 1e10 solar masses (mass-dependent model)", .can_vary = true});
+  s.add({.path = "sources.star_fraction_slope", .type = ValueType::real, .default_value = 0.5, .min = -1.0,
+         .max = 2.0, .doc = "power-law index of the star fraction in halo mass", .can_vary = true});
+  s.add({.path = "sources.escape_fraction_at_1e10", .type = ValueType::real, .default_value = 0.1, .min = 0.0,
+         .max = 1.0, .min_exclusive = true,
+         .doc = "escape fraction of ionizing photons at 1e10 solar masses (mass-dependent model)",
+         .can_vary = true});
+  s.add({.path = "sources.escape_fraction_slope", .type = ValueType::real, .default_value = -0.5, .min = -2.0,
+         .max = 2.0, .doc = "power-law index of the escape fraction in halo mass", .can_vary = true});
+  s.add({.path = "sources.turnover_mass_msun", .type = ValueType::real, .default_value = 5e8, .unit = "Msun",
+         .min = 1e5, .max = 1e12, .doc = "halo mass below which star formation is exponentially suppressed",
+         .can_vary = true});
+
+  s.add_table("spin_temperature", "Optional global spin-temperature history (coupling and heating, tanh steps).");
+  s.add({.path = "spin_temperature.enabled", .type = ValueType::boolean, .default_value = false,
+         .doc = "false: T_S >> T_CMB (emission only)"});
+  s.add({.path = "spin_temperature.coupling_redshift", .type = ValueType::real, .default_value = 17.0,
+         .min = 5.0, .max = 40.0, .doc = "redshift where Lyman-alpha coupling is half way", .can_vary = true});
+  s.add({.path = "spin_temperature.coupling_width", .type = ValueType::real, .default_value = 2.0, .min = 0.0,
+         .max = 20.0, .min_exclusive = true, .doc = "redshift width of the coupling step"});
+  s.add({.path = "spin_temperature.coupling_strength", .type = ValueType::real, .default_value = 30.0, .min = 0.0,
+         .max = 1e4, .min_exclusive = true, .doc = "Lyman-alpha coupling coefficient once coupling is complete"});
+  s.add({.path = "spin_temperature.heating_redshift", .type = ValueType::real, .default_value = 11.0,
+         .min = 5.0, .max = 40.0, .doc = "redshift where gas heating is half way", .can_vary = true});
+  s.add({.path = "spin_temperature.heating_width", .type = ValueType::real, .default_value = 1.5, .min = 0.0,
+         .max = 20.0, .min_exclusive = true, .doc = "redshift width of the heating step"});
+  s.add({.path = "spin_temperature.heating_temperature_K", .type = ValueType::real, .default_value = 500.0,
+         .unit = "K", .min = 0.0, .max = 1e6, .doc = "gas temperature added by heating once complete",
+         .can_vary = true});
+}
+
+double SpinTemperatureHistory::spin_temperature_K(double z, double T_cmb0_K) const {
+  const double t_cmb = T_cmb0_K * (1.0 + z);
+  // Adiabatic cooling after thermal decoupling at z ≈ 150 (common practice): T_K ∝ (1+z)².
+  const double t_adiabatic = T_cmb0_K * (1.0 + z) * (1.0 + z) / 151.0;
+  const double heated = 0.5 * (1.0 - std::tanh((z - heating_redshift) / heating_width));
+  const double t_gas = std::min(t_cmb, t_adiabatic) + heating_temperature_K * heated;
+  const double x_alpha = coupling_strength * 0.5 * (1.0 - std::tanh((z - coupling_redshift) / coupling_width));
+  // Field 1958 / Furlanetto, Oh & Briggs (2006) eq. 5 with only Lyα coupling, T_colour = T_K.
+  return (1.0 + x_alpha) / (1.0 / t_cmb + x_alpha / t_gas);
+}
+
+namespace {
+
+using FailFn = std::function<void(const std::string& key, const std::string& message)>;
+
+void check(const ConeSettings& s, const cosmo::Cosmology& c, const FailFn& fail) {
+  if (!(s.z_max > s.z_min)) fail("cone.z_max", "must be above cone.z_min = " + std::to_string(s.z_min));
+  if (s.reionization && s.cell_mpc > s.bubble_radius_max_mpc)
+    fail("sources.bubble_radius_max_mpc",
+         "the bubble cap must be at least the cell size cone.cell_mpc = " + std::to_string(s.cell_mpc) + " Mpc");
+  const double d_near = c.comoving_distance_mpc(s.z_min);
+  const double needed = c.comoving_distance_mpc(s.z_max) - d_near;
+  const double length = static_cast<double>(s.n_los) * s.cell_mpc;
+  if (length < needed)
+    fail("cone.n_los", "box too short for the band: n_los × cell_mpc = " + std::to_string(length) +
+                           " Mpc but z " + std::to_string(s.z_min) + ".." + std::to_string(s.z_max) + " needs " +
+                           std::to_string(needed) + " Mpc");
+  const double d_far = d_near + length;
+  if (d_far > c.comoving_distance_mpc(35.0))
+    fail("cone.n_los", "the cone's far end (" + std::to_string(length) +
+                           " Mpc beyond z_min) lies beyond z = 35, the highest redshift allowed");
+  if (s.model == SourceModel::constant && !(s.ionizing_efficiency > 1.0))
+    fail("sources.ionizing_efficiency", "must be above 1");
+  if (s.spin.enabled && !(s.spin.heating_temperature_K >= 0.0))
+    fail("spin_temperature.heating_temperature_K", "must not be negative");
+  if (!(s.min_virial_temperature_K > 0.0)) fail("sources.min_virial_temperature_K", "must be positive");
+}
+
+}  // namespace
+
+void check_settings(const ConeSettings& s, const cosmo::Cosmology& c) {
+  check(s, c, [&](const std::string& key, const std::string& message) -> void {
+    throw ConfigError(key + ": " + message);
+  });
+}
+
+ConeSettings settings_from(const core::Config& cfg) {
+  ConeSettings s;
+  s.n_perp = static_cast<std::size_t>(cfg.integer("cone.n_perp"));
+  s.n_los = static_cast<std::size_t>(cfg.integer("cone.n_los"));
+  s.cell_mpc = cfg.real("cone.cell_mpc");
+  s.z_min = cfg.real("cone.z_min");
+  s.z_max = cfg.real("cone.z_max");
+  s.velocity_gradient = cfg.boolean("cone.velocity_gradient");
+  s.velocity_gradient_max = cfg.real("cone.velocity_gradient_max");
+  s.reionization = cfg.boolean("sources.reionization");
+  s.model = cfg.string("sources.model") == "mass_dependent" ? SourceModel::mass_dependent : SourceModel::constant;
+  s.ionizing_efficiency = cfg.real("sources.ionizing_efficiency");
+  s.min_virial_temperature_K = cfg.real("sources.min_virial_temperature_K");
+  s.bubble_radius_max_mpc = cfg.real("sources.bubble_radius_max_mpc");
+  s.n_radii = static_cast<std::size_t>(cfg.integer("sources.n_radii"));
+  s.partial_ionization = cfg.boolean("sources.partial_ionization");
+  s.ionizing_photons_per_baryon = cfg.real("sources.ionizing_photons_per_baryon");
+  s.star_fraction_at_1e10 = cfg.real("sources.star_fraction_at_1e10");
+  s.star_fraction_slope = cfg.real("sources.star_fraction_slope");
+  s.escape_fraction_at_1e10 = cfg.real("sources.escape_fraction_at_1e10");
+  s.escape_fraction_slope = cfg.real("sources.escape_fraction_slope");
+  s.turnover_mass_msun = cfg.real("sources.turnover_mass_msun");
+  s.spin.enabled = cfg.boolean("spin_temperature.enabled");
+  s.spin.coupling_redshift = cfg.real("spin_temperature.coupling_redshift");
+  s.spin.coupling_width = cfg.real("spin_temperature.coupling_width");
+  s.spin.coupling_strength = cfg.real("spin_temperature.coupling_strength");
+  s.spin.heating_redshift = cfg.real("spin_temperature.heating_redshift");
+  s.spin.heating_width = cfg.real("spin_temperature.heating_width");
+  s.spin.heating_temperature_K = cfg.real("spin_temperature.heating_temperature_K");
+  const cosmo::Cosmology c(cosmo::parameters_from(cfg));
+  check(s, c, [&](const std::string& key, const std::string& message) -> void { cfg.fail(key, message); });
+  return s;
+}
+
+}  // namespace spinflip::sim

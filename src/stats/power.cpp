@@ -1,0 +1,295 @@
+// Power spectra (DESIGN.md §6): spherical/circular P(k) and delta2 of chunks and
+// slices, cylindrical P(k_perp, k_par) of chunks. One r2c transform per unit;
+// the full Fourier grid is counted on the half grid by weighting each plane of
+// the last axis by half_plane_weight (mirror modes have the same |F|²).
+#include <algorithm>
+#include <limits>
+
+#include "fft/fft.hpp"
+#include "stats/internal.hpp"
+
+namespace spinflip::stats::detail {
+namespace {
+
+struct GeomKey {
+  std::vector<std::size_t> shape;
+  std::array<double, 3> cell;
+  bool operator==(const GeomKey&) const = default;
+};
+GeomKey key_of(const Geometry& g) { return {g.shape, g.cell_mpc}; }
+
+/// Unit geometry seen as n0 × n1 × n2 with the half axis last (a slice is 1 × n0 × n1).
+struct Dims {
+  std::size_t n0, n1, n2, h2;
+  double c0, c1, c2;
+  bool two_d;
+};
+Dims dims_of(const Geometry& g) {
+  if (g.shape.size() == 2) return {1, g.shape[0], g.shape[1], g.shape[1] / 2 + 1, 1.0, g.cell(0), g.cell(1), true};
+  return {g.shape[0], g.shape[1], g.shape[2], g.shape[2] / 2 + 1, g.cell(0), g.cell(1), g.cell(2), false};
+}
+
+/// Forward transform of a unit into the half grid (n0 n1 h2 complex).
+fft::Buffer<fft::cfloat> transform(const float* data, const Geometry& g) {
+  const Dims d = dims_of(g);
+  fft::Buffer<fft::cfloat> out(d.n0 * d.n1 * d.h2);
+  if (d.two_d)
+    fft::r2c_2d(d.n1, d.n2, data, out.data());
+  else
+    fft::r2c_3d({d.n0, d.n1, d.n2}, data, out.data());
+  return out;
+}
+
+double cell_volume(const Geometry& g) {
+  double v = 1.0;
+  for (std::size_t a = 0; a < g.shape.size(); ++a) v *= g.cell(a);
+  return v;
+}
+
+std::vector<double> axis_k2(std::size_t n, double cell) {
+  std::vector<double> k2(n);
+  for (std::size_t i = 0; i < n; ++i) k2[i] = std::pow(wavenumber(i, n, cell), 2);
+  return k2;
+}
+
+const double nan = std::numeric_limits<double>::quiet_NaN();
+
+// ---------------------------------------------------------------- spherical
+struct SphericalTable {
+  std::vector<std::int32_t> bin;  // per half-grid mode, -1 outside every bin (and k = 0)
+  std::vector<double> n_modes, k_mean;
+};
+
+class PowerKernel final : public Kernel {
+ public:
+  PowerKernel(std::string name, UnitKind kind, std::vector<double> edges, bool log_bins)
+      : name_(std::move(name)), kind_(kind), edges_(std::move(edges)), log_bins_(log_bins) {}
+
+  const std::string& name() const override { return name_; }
+  UnitKind unit_kind() const override { return kind_; }
+  void check(const Geometry& g) const override { require_dims(name_, g, kind_); }
+  std::size_t n_coeff(const Geometry&) const override { return 2 * bins(); }
+
+  std::vector<Axis> axes(const Geometry& g) const override {
+    check(g);
+    auto t = table(g);
+    std::vector<std::int64_t> quantity, n_modes;
+    std::vector<double> lo, hi, km;
+    for (int q = 0; q < 2; ++q)
+      for (std::size_t b = 0; b < bins(); ++b) {
+        quantity.push_back(q);
+        lo.push_back(edges_[b]);
+        hi.push_back(edges_[b + 1]);
+        km.push_back(t->n_modes[b] > 0 ? t->k_mean[b] : nan);
+        n_modes.push_back(static_cast<std::int64_t>(t->n_modes[b]));
+      }
+    return {{"quantity", quantity}, {"k_lo", lo}, {"k_hi", hi}, {"k_mean", km}, {"n_modes", n_modes}};
+  }
+
+  std::vector<double> measure(const float* data, const Geometry& g) const override {
+    check(g);
+    auto t = table(g);
+    const Dims d = dims_of(g);
+    auto f = transform(data, g);
+    const auto k0 = axis_k2(d.n0, d.c0), k1 = axis_k2(d.n1, d.c1), k2 = axis_k2(d.n2, d.c2);
+    std::vector<double> p(bins(), 0.0), dk(bins(), 0.0);
+    const bool two_d = d.two_d;
+    std::size_t idx = 0;
+    for (std::size_t i = 0; i < d.n0; ++i)
+      for (std::size_t j = 0; j < d.n1; ++j)
+        for (std::size_t k = 0; k < d.h2; ++k, ++idx) {
+          const std::int32_t b = t->bin[idx];
+          if (b < 0) continue;
+          const double w = half_plane_weight(k, d.n2);
+          const double p2 = std::norm(std::complex<double>(f[idx]));
+          const double kk = k0[i] + k1[j] + k2[k];
+          p[b] += w * p2;
+          dk[b] += w * p2 * (two_d ? kk : kk * std::sqrt(kk));  // |k|² (2D) or |k|³ (3D)
+        }
+    // P̂ = ΔV² |F|² / V = ΔV |F|² / N (DESIGN.md §6); delta2 = |k|^D P̂ / (2π) or (2π²).
+    const double dv = cell_volume(g), n = static_cast<double>(g.n_cells());
+    const double delta_norm = two_d ? 1.0 / (2.0 * M_PI) : 1.0 / (2.0 * M_PI * M_PI);
+    std::vector<double> out(2 * bins());
+    for (std::size_t b = 0; b < bins(); ++b) {
+      const double m = t->n_modes[b];
+      out[b] = m > 0 ? p[b] * dv / n / m : nan;
+      out[bins() + b] = m > 0 ? dk[b] * dv / n / m * delta_norm : nan;
+    }
+    return out;
+  }
+
+  Attributes attributes() const override {
+    return {{"kernel", std::string(kind_ == UnitKind::chunk ? "spherical power spectrum" : "2D power spectrum")},
+            {"bins", static_cast<std::int64_t>(bins())},
+            {"k_min_mpc", edges_.front()},
+            {"k_max_mpc", edges_.back()},
+            {"log_bins", log_bins_},
+            {"quantity_names", std::vector<std::string>{"power", "delta2"}},
+            {"power_unit", std::string(kind_ == UnitKind::chunk ? "mK^2 Mpc^3" : "mK^2 Mpc^2")},
+            {"delta2_unit", std::string("mK^2")}};
+  }
+
+ private:
+  std::size_t bins() const { return edges_.size() - 1; }
+
+  std::shared_ptr<const SphericalTable> table(const Geometry& g) const {
+    return cache_.get(key_of(g), [&] {
+      const Dims d = dims_of(g);
+      SphericalTable t;
+      t.bin.assign(d.n0 * d.n1 * d.h2, -1);
+      t.n_modes.assign(bins(), 0.0);
+      t.k_mean.assign(bins(), 0.0);
+      const auto k0 = axis_k2(d.n0, d.c0), k1 = axis_k2(d.n1, d.c1), k2 = axis_k2(d.n2, d.c2);
+      std::size_t idx = 0;
+      for (std::size_t i = 0; i < d.n0; ++i)
+        for (std::size_t j = 0; j < d.n1; ++j)
+          for (std::size_t k = 0; k < d.h2; ++k, ++idx) {
+            const double kk = std::sqrt(k0[i] + k1[j] + k2[k]);
+            if (kk <= 0.0 || kk < edges_.front() || kk >= edges_.back()) continue;
+            const auto b = static_cast<std::size_t>(std::upper_bound(edges_.begin(), edges_.end(), kk) -
+                                                    edges_.begin()) - 1;
+            t.bin[idx] = static_cast<std::int32_t>(b);
+            const double w = half_plane_weight(k, d.n2);
+            t.n_modes[b] += w;
+            t.k_mean[b] += w * kk;
+          }
+      for (std::size_t b = 0; b < bins(); ++b)
+        if (t.n_modes[b] > 0) t.k_mean[b] /= t.n_modes[b];
+      return t;
+    });
+  }
+
+  std::string name_;
+  UnitKind kind_;
+  std::vector<double> edges_;
+  bool log_bins_;
+  TableCache<GeomKey, SphericalTable> cache_;
+};
+
+// ---------------------------------------------------------------- cylindrical
+struct CylTable {
+  std::vector<std::int32_t> perp_bin;  // n0 × n1
+  std::vector<std::int32_t> par_bin;   // h2
+  std::vector<double> n_modes;         // kperp-major
+};
+
+class CylindricalKernel final : public Kernel {
+ public:
+  CylindricalKernel(std::vector<double> perp, std::vector<double> par, bool log_bins)
+      : perp_(std::move(perp)), par_(std::move(par)), log_bins_(log_bins) {}
+
+  const std::string& name() const override { return name_; }
+  UnitKind unit_kind() const override { return UnitKind::chunk; }
+  void check(const Geometry& g) const override { require_dims(name_, g, UnitKind::chunk); }
+  std::size_t n_coeff(const Geometry&) const override { return np() * nq(); }
+
+  std::vector<Axis> axes(const Geometry& g) const override {
+    check(g);
+    auto t = table(g);
+    std::vector<double> plo, phi, qlo, qhi;
+    std::vector<std::int64_t> n;
+    for (std::size_t a = 0; a < np(); ++a)
+      for (std::size_t b = 0; b < nq(); ++b) {
+        plo.push_back(perp_[a]);
+        phi.push_back(perp_[a + 1]);
+        qlo.push_back(par_[b]);
+        qhi.push_back(par_[b + 1]);
+        n.push_back(static_cast<std::int64_t>(t->n_modes[a * nq() + b]));
+      }
+    return {{"kperp_lo", plo}, {"kperp_hi", phi}, {"kpar_lo", qlo}, {"kpar_hi", qhi}, {"n_modes", n}};
+  }
+
+  std::vector<double> measure(const float* data, const Geometry& g) const override {
+    check(g);
+    auto t = table(g);
+    const Dims d = dims_of(g);
+    auto f = transform(data, g);
+    std::vector<double> acc(np() * nq(), 0.0);
+    std::size_t idx = 0;
+    for (std::size_t ij = 0; ij < d.n0 * d.n1; ++ij) {
+      const std::int32_t a = t->perp_bin[ij];
+      if (a < 0) {
+        idx += d.h2;
+        continue;
+      }
+      double* row = acc.data() + static_cast<std::size_t>(a) * nq();
+      for (std::size_t k = 0; k < d.h2; ++k, ++idx) {
+        const std::int32_t b = t->par_bin[k];
+        if (b < 0 || (ij == 0 && k == 0)) continue;
+        row[b] += half_plane_weight(k, d.n2) * std::norm(std::complex<double>(f[idx]));
+      }
+    }
+    const double dv = cell_volume(g), n = static_cast<double>(g.n_cells());
+    for (std::size_t c = 0; c < acc.size(); ++c) acc[c] = t->n_modes[c] > 0 ? acc[c] * dv / n / t->n_modes[c] : nan;
+    return acc;
+  }
+
+  Attributes attributes() const override {
+    return {{"kernel", std::string("cylindrical power spectrum")},
+            {"kperp_bins", static_cast<std::int64_t>(np())},
+            {"kpar_bins", static_cast<std::int64_t>(nq())},
+            {"kperp_min_mpc", perp_.front()},
+            {"kperp_max_mpc", perp_.back()},
+            {"kpar_min_mpc", par_.front()},
+            {"kpar_max_mpc", par_.back()},
+            {"log_bins", log_bins_},
+            {"power_unit", std::string("mK^2 Mpc^3")}};
+  }
+
+ private:
+  std::size_t np() const { return perp_.size() - 1; }
+  std::size_t nq() const { return par_.size() - 1; }
+  static std::int32_t find_bin(const std::vector<double>& e, double k) {
+    if (k < e.front() || k >= e.back()) return -1;
+    return static_cast<std::int32_t>(std::upper_bound(e.begin(), e.end(), k) - e.begin() - 1);
+  }
+
+  std::shared_ptr<const CylTable> table(const Geometry& g) const {
+    return cache_.get(key_of(g), [&] {
+      const Dims d = dims_of(g);
+      CylTable t;
+      t.perp_bin.resize(d.n0 * d.n1);
+      t.par_bin.resize(d.h2);
+      t.n_modes.assign(np() * nq(), 0.0);
+      const auto k0 = axis_k2(d.n0, d.c0), k1 = axis_k2(d.n1, d.c1);
+      for (std::size_t i = 0; i < d.n0; ++i)
+        for (std::size_t j = 0; j < d.n1; ++j) t.perp_bin[i * d.n1 + j] = find_bin(perp_, std::sqrt(k0[i] + k1[j]));
+      for (std::size_t k = 0; k < d.h2; ++k) t.par_bin[k] = find_bin(par_, std::abs(wavenumber(k, d.n2, d.c2)));
+      for (std::size_t ij = 0; ij < d.n0 * d.n1; ++ij)
+        for (std::size_t k = 0; k < d.h2; ++k) {
+          const auto a = t.perp_bin[ij], b = t.par_bin[k];
+          if (a >= 0 && b >= 0 && !(ij == 0 && k == 0)) t.n_modes[a * nq() + b] += half_plane_weight(k, d.n2);
+        }
+      return t;
+    });
+  }
+
+  std::string name_ = "cylindrical";
+  std::vector<double> perp_, par_;
+  bool log_bins_;
+  TableCache<GeomKey, CylTable> cache_;
+};
+
+}  // namespace
+
+std::unique_ptr<Kernel> make_power(const core::Config& c, const std::string& t, UnitKind kind) {
+  const double lo = c.real(t + ".k_min_mpc"), hi = c.real(t + ".k_max_mpc");
+  if (hi <= lo) c.fail(t + ".k_max_mpc", "must be larger than " + t + ".k_min_mpc = " + std::to_string(lo));
+  const bool log_bins = c.boolean(t + ".log_bins");
+  const auto name = t.substr(t.find('.') + 1);
+  return std::make_unique<PowerKernel>(name, kind, bin_edges(lo, hi, c.integer(t + ".bins"), log_bins), log_bins);
+}
+
+std::unique_ptr<Kernel> make_cylindrical(const core::Config& c) {
+  const std::string t = "stats.cylindrical";
+  const bool log_bins = c.boolean(t + ".log_bins");
+  auto edges = [&](const std::string& axis) {
+    const double lo = c.real(t + "." + axis + "_min_mpc"), hi = c.real(t + "." + axis + "_max_mpc");
+    if (hi <= lo)
+      c.fail(t + "." + axis + "_max_mpc", "must be larger than " + axis + "_min_mpc = " + std::to_string(lo));
+    return bin_edges(lo, hi, c.integer(t + "." + axis + "_bins"), log_bins);
+  };
+  return std::make_unique<CylindricalKernel>(edges("kperp"), edges("kpar"), log_bins);
+}
+
+}  // namespace spinflip::stats::detail

@@ -20,8 +20,13 @@ find_library(FFTW3_MPI_LIB fftw3_mpi)
 if(NOT FFTW3F_MPI_LIB OR NOT FFTW3_MPI_LIB)
   message(FATAL_ERROR "spinflip needs FFTW3 with MPI: install libfftw3-mpi-dev (deploy/install-debian.sh does)")
 endif()
+find_library(FFTW3F_THREADS_LIB fftw3f_threads)
+find_library(FFTW3_THREADS_LIB fftw3_threads)
+if(NOT FFTW3F_THREADS_LIB OR NOT FFTW3_THREADS_LIB)
+  message(FATAL_ERROR "spinflip needs the FFTW3 threads libraries: install libfftw3-dev (deploy/install-debian.sh does)")
+endif()
 add_library(spinflip_fftw INTERFACE)
-target_link_libraries(spinflip_fftw INTERFACE ${FFTW3F_MPI_LIB} ${FFTW3_MPI_LIB}
+target_link_libraries(spinflip_fftw INTERFACE ${FFTW3F_MPI_LIB} ${FFTW3_MPI_LIB} ${FFTW3F_THREADS_LIB} ${FFTW3_THREADS_LIB}
                       PkgConfig::FFTW3F PkgConfig::FFTW3 MPI::MPI_CXX)
 
 find_package(spdlog REQUIRED)

@@ -165,6 +165,7 @@ Barrier::Barrier(std::vector<double> z_nodes, std::vector<double> delta_crit)
   const std::size_t n = 4096;
   d0_ = lowest_;
   dd_ = std::max(highest_ - lowest_, 1e-12) / static_cast<double>(n - 1);
+  inv_dd_ = 1.0 / dd_;
   z_of_delta_.resize(n);
   std::size_t i = 0;
   for (std::size_t g = 0; g < n; ++g) {
@@ -180,15 +181,6 @@ Barrier::Barrier(std::vector<double> z_nodes, std::vector<double> delta_crit)
     }
     z_of_delta_[g] = static_cast<float>(z);
   }
-}
-
-double Barrier::redshift_reached(double delta_R0) const {
-  if (!(delta_R0 >= lowest_)) return -std::numeric_limits<double>::infinity();
-  if (delta_R0 >= highest_) return z_of_delta_.back();
-  double x = (delta_R0 - d0_) / dd_;
-  auto g = std::min(static_cast<std::size_t>(x), z_of_delta_.size() - 2);
-  double t = x - static_cast<double>(g);
-  return z_of_delta_[g] * (1 - t) + z_of_delta_[g + 1] * t;
 }
 
 double min_halo_mass(double T_vir_K, double z, const cosmo::Cosmology& c) {

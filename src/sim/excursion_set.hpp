@@ -2,7 +2,9 @@
 // (collapsed fraction, ionizing yield of the two source models, the critical
 // density of each radius as a function of redshift). Exposed for tests.
 #pragma once
+#include <algorithm>
 #include <cstddef>
+#include <limits>
 #include <vector>
 
 namespace spinflip::cosmo { class Cosmology; }
@@ -59,13 +61,21 @@ class Barrier {
  public:
   Barrier(std::vector<double> z_nodes, std::vector<double> delta_crit);
   /// Highest z (linear between nodes) with barrier(z) ≤ δ; -inf if below the lowest node.
-  double redshift_reached(double delta_R0) const;
+  double redshift_reached(double delta_R0) const {
+    if (!(delta_R0 >= lowest_)) return -std::numeric_limits<double>::infinity();
+    if (delta_R0 >= highest_) return z_of_delta_.back();
+    const double x = (delta_R0 - d0_) * inv_dd_;
+    const auto g = std::min(static_cast<std::size_t>(x), z_of_delta_.size() - 2);
+    const double t = x - static_cast<double>(g);
+    return z_of_delta_[g] * (1 - t) + z_of_delta_[g + 1] * t;
+  }
   double lowest() const { return lowest_; }
+  double highest_redshift() const { return z_.back(); }
   const std::vector<double>& delta_crit() const { return crit_; }
 
  private:
   std::vector<double> z_, crit_;
-  double lowest_, highest_, d0_ = 0, dd_ = 1;
+  double lowest_, highest_, d0_ = 0, dd_ = 1, inv_dd_ = 1;
   std::vector<float> z_of_delta_;
 };
 

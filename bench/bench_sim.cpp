@@ -1,0 +1,120 @@
+// Light-cone generation time against the FFTs it must do (one forward
+// transform of the initial conditions, one inverse for the density, one for
+// the velocity gradient and one per smoothing radius), measured in the same
+// run, and the generator's peak memory per cell.
+//   bench_sim [--n_perp=128] [--n_los=1024] [--radii=40] [benchmark flags]
+// The target: generation ≤ 1.5 × transforms, peak ≤ 48 bytes per cell.
+#include <benchmark/benchmark.h>
+#include <mpi.h>
+
+#include <cstdio>
+#include <cstdlib>
+#include <cstring>
+#include <fstream>
+#include <map>
+#include <string>
+
+#include "cosmo/cosmology.hpp"
+#include "fft/fft.hpp"
+#include "sim/lightcone.hpp"
+
+using namespace spinflip;
+
+namespace {
+
+std::size_t n_perp = 128, n_los = 1024, n_radii = 40;
+
+sim::ConeSettings bench_settings() {
+  sim::ConeSettings s;
+  s.n_perp = n_perp;
+  s.n_los = n_los;
+  s.cell_mpc = 1.5;
+  s.z_min = 7.0;
+  s.z_max = 7.2;
+  s.bubble_radius_max_mpc = 30.0;
+  s.n_radii = n_radii;
+  return s;
+}
+
+void generate(benchmark::State& state) {
+  const cosmo::Cosmology c;
+  const auto s = bench_settings();
+  std::uint64_t r = 0;
+  for (auto _ : state) {
+    auto cone = sim::generate_cone(s, c, rng::EntryKey{1, 0, r++}, MPI_COMM_SELF);
+    benchmark::DoNotOptimize(cone.delta_tb_mK.data.data());
+  }
+}
+
+void transforms(benchmark::State& state) {
+  fft::SlabField f({n_perp, n_perp, n_los}, MPI_COMM_SELF);
+  f.fill(0.5f);
+  for (auto _ : state) {
+    f.forward();
+    for (std::size_t i = 0; i < n_radii + 2; ++i) f.inverse();
+    benchmark::DoNotOptimize(f.real_data());
+  }
+}
+
+long status_kb(const char* field) {
+  std::ifstream in("/proc/self/status");
+  std::string line;
+  const std::size_t n = std::strlen(field);
+  while (std::getline(in, line))
+    if (line.compare(0, n, field) == 0) return std::atol(line.c_str() + n + 1);
+  return -1;
+}
+
+class Collect : public benchmark::ConsoleReporter {
+ public:
+  std::map<std::string, double> seconds;
+  void ReportRuns(const std::vector<Run>& runs) override {
+    for (const auto& r : runs)
+      if (r.run_type == Run::RT_Iteration && r.iterations > 0)
+        seconds[r.benchmark_name()] = r.real_accumulated_time / static_cast<double>(r.iterations);
+    ConsoleReporter::ReportRuns(runs);
+  }
+};
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  MPI_Init(&argc, &argv);
+  std::vector<char*> rest{argv[0]};
+  for (int i = 1; i < argc; ++i) {
+    std::string a = argv[i];
+    auto value = [&](const char* p) { return static_cast<std::size_t>(std::atol(a.c_str() + std::strlen(p))); };
+    if (a.rfind("--n_perp=", 0) == 0) n_perp = value("--n_perp=");
+    else if (a.rfind("--n_los=", 0) == 0) n_los = value("--n_los=");
+    else if (a.rfind("--radii=", 0) == 0) n_radii = value("--radii=");
+    else rest.push_back(argv[i]);
+  }
+  int rc = static_cast<int>(rest.size());
+  benchmark::Initialize(&rc, rest.data());
+  const double cells = double(n_perp) * double(n_perp) * double(n_los);
+
+  // Peak memory of one generation: reset the high-water mark (Linux clear_refs "5"), then VmHWM − VmRSS.
+  {
+    const cosmo::Cosmology c;
+    const auto s = bench_settings();
+    const long before = status_kb("VmRSS:");
+    { std::ofstream("/proc/self/clear_refs") << "5"; }
+    { auto cone = sim::generate_cone(s, c, rng::EntryKey{1, 0, 999}, MPI_COMM_SELF); }
+    const long peak = status_kb("VmHWM:");
+    std::printf("cone %zu x %zu x %zu, %zu radii: peak memory %.1f bytes per cell (target <= 48)\n", n_perp,
+                n_perp, n_los, n_radii, double(peak - before) * 1024.0 / cells);
+  }
+
+  benchmark::RegisterBenchmark("generate_cone", generate)->Unit(benchmark::kSecond)->Iterations(2);
+  benchmark::RegisterBenchmark("its_transforms", transforms)->Unit(benchmark::kSecond)->Iterations(2);
+  Collect reporter;
+  benchmark::RunSpecifiedBenchmarks(&reporter);
+  if (reporter.seconds.count("generate_cone/iterations:2") && reporter.seconds.count("its_transforms/iterations:2")) {
+    const double g = reporter.seconds["generate_cone/iterations:2"], t = reporter.seconds["its_transforms/iterations:2"];
+    std::printf("generation %.3f s, its %zu transforms %.3f s: ratio %.2f (target <= 1.5)\n", g, n_radii + 3, t,
+                g / t);
+  }
+  benchmark::Shutdown();
+  MPI_Finalize();
+  return 0;
+}

@@ -22,7 +22,7 @@ void declare_power(core::Schema& s, const std::string& t, const std::string& wha
          .doc = "geometric bin edges (else linear)"});
 }
 
-[[maybe_unused]] void declare_bispectrum(core::Schema& s, const std::string& t, const std::string& what) {
+void declare_bispectrum(core::Schema& s, const std::string& t, const std::string& what) {
   s.add_table(t, what);
   s.add({.path = t + ".k1_mpc", .type = ValueType::real_array, .unit = "1/Mpc", .min = 0.0, .min_exclusive = true,
          .doc = "|k1| of each triangle (length-1 arrays are broadcast)"});
@@ -68,6 +68,27 @@ void declare_keys(core::Schema& s) {
   s.add({.path = c + ".log_bins", .type = ValueType::boolean, .default_value = true,
          .doc = "geometric bin edges on both axes (else linear)"});
 
+  const std::string w = "stats.scattering";
+  s.add_table(w, "Wavelet scattering coefficients S0, S1, S2 of slices (Morlet/Gabor filters, DESIGN.md §6).");
+  s.add({.path = w + ".scales", .type = ValueType::integer, .default_value = std::int64_t{5}, .min = 1, .max = 16,
+         .doc = "number of dyadic scales J (a slice needs at least 2^J cells per axis)"});
+  s.add({.path = w + ".orientations", .type = ValueType::integer, .default_value = std::int64_t{8}, .min = 1,
+         .max = 64, .doc = "number of orientations L over [0, π)"});
+  s.add({.path = w + ".reduce", .type = ValueType::string, .default_value = std::string("none"),
+         .choices = {"none", "rotation"}, .doc = "rotation: average S1 over l and S2 over l1 at fixed l2 - l1"});
+  s.add({.path = w + ".normalise", .type = ValueType::boolean, .default_value = false,
+         .doc = "divide S2(j1,l1,j2,l2) by S1(j1,l1)"});
+  s.add({.path = w + ".xi0", .type = ValueType::real, .default_value = 3.0 * M_PI / 4.0, .unit = "rad/cell",
+         .min = 0.0, .min_exclusive = true, .doc = "centre frequency of scale 0 (xi_j = xi0 2^-j)"});
+  s.add({.path = w + ".sigma0", .type = ValueType::real, .default_value = 0.8, .unit = "cell", .min = 0.0,
+         .min_exclusive = true, .doc = "spatial width of scale 0 (sigma_j = sigma0 2^j)"});
+  s.add({.path = w + ".slant", .type = ValueType::real, .default_value = 0.0, .min = 0.0,
+         .doc = "aspect s of the envelope (k_perp^2 / s^2); 0 means the contract default 4 / orientations"});
+  s.add({.path = w + ".crop", .type = ValueType::boolean, .default_value = true,
+         .doc = "work on Fourier planes cropped to each filter's support (same result within 1e-4)"});
+
+  declare_bispectrum(s, "stats.bispectrum", "FFT shell-estimator bispectrum of 3D chunks for listed triangles.");
+  declare_bispectrum(s, "stats.slice_bispectrum", "FFT shell-estimator bispectrum of slices for listed triangles.");
   declare_moments(s, "stats.moments", "One-point moments (mean, variance, skewness, excess kurtosis) of slices.");
   declare_moments(s, "stats.chunk_moments", "One-point moments of 3D chunks.");
 }
@@ -78,6 +99,11 @@ std::vector<std::unique_ptr<Kernel>> kernels_from(const core::Config& config) {
   if (config.has_table("stats.slice_power"))
     out.push_back(detail::make_power(config, "stats.slice_power", UnitKind::slice));
   if (config.has_table("stats.cylindrical")) out.push_back(detail::make_cylindrical(config));
+  if (config.has_table("stats.scattering")) out.push_back(detail::make_scattering(config));
+  if (config.has_table("stats.bispectrum"))
+    out.push_back(detail::make_bispectrum(config, "stats.bispectrum", UnitKind::chunk));
+  if (config.has_table("stats.slice_bispectrum"))
+    out.push_back(detail::make_bispectrum(config, "stats.slice_bispectrum", UnitKind::slice));
   if (config.has_table("stats.moments"))
     out.push_back(detail::make_moments(config, "stats.moments", UnitKind::slice));
   if (config.has_table("stats.chunk_moments"))

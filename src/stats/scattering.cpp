@@ -1,0 +1,331 @@
+// 2D wavelet scattering (DESIGN.md §6, exact definition there). Filters are
+// built once per slice shape. With `crop`, each convolution keeps only the
+// Fourier box where |ψ̂| > 1e-7 max|ψ̂| (shifted to the box centre, which only
+// changes the phase) and is inverted on a smaller grid whose size also holds
+// the band of |x⋆ψ|², so means over the coarse samples match the full-grid
+// means (checked against the uncropped path in tests/stats).
+#include <algorithm>
+#include <numeric>
+
+#include "fft/fft.hpp"
+#include "stats/internal.hpp"
+
+namespace spinflip::stats::detail {
+namespace {
+
+using cf = fft::cfloat;
+
+struct ScatteringParams {
+  std::size_t J, L;
+  double xi0, sigma0, slant;
+  bool rotation, normalise, crop;
+};
+
+/// One filter ψ̂_{j,l} restricted to a box of fine-grid frequency indices
+/// [b1, b1+w1) × [b2, b2+w2) (signed, taken modulo N), inverted on m1 × m2
+/// after shifting the box centre (c1, c2) to zero.
+struct Filter {
+  long b1 = 0, b2 = 0, c1 = 0, c2 = 0;
+  std::size_t w1 = 0, w2 = 0;
+  std::size_t m1 = 0, m2 = 0;    // grid for |x⋆ψ| when only its mean is needed
+  std::size_t u1 = 0, u2 = 0;    // grid for U1 = |x⋆ψ| that feeds second order
+  std::vector<float> value;      // w1 × w2
+};
+
+struct Bank {
+  std::size_t n1, n2;
+  std::vector<Filter> filters;  // index j * L + l
+};
+
+long wrap(long m, std::size_t n) {
+  const long nn = static_cast<long>(n);
+  return ((m % nn) + nn) % nn;
+}
+long signed_index(std::size_t i, std::size_t n) {
+  return i < (n + 1) / 2 ? static_cast<long>(i) : static_cast<long>(i) - static_cast<long>(n);
+}
+
+/// Smallest 2^a 3^b 5^c ≥ x, or n when that is not smaller than n.
+std::size_t nice_size(std::size_t x, std::size_t n) {
+  std::size_t best = n;
+  for (std::size_t p2 = 1; p2 < 2 * n; p2 *= 2)
+    for (std::size_t p3 = p2; p3 < 2 * n; p3 *= 3)
+      for (std::size_t p5 = p3; p5 < 2 * n; p5 *= 5)
+        if (p5 >= x && p5 < best) best = p5;
+  return best;
+}
+
+/// Smallest circular arc [start, start+len) of 0..n-1 covering every flagged index.
+std::pair<long, std::size_t> covering_arc(const std::vector<char>& flag) {
+  const std::size_t n = flag.size();
+  std::vector<std::size_t> on;
+  for (std::size_t i = 0; i < n; ++i)
+    if (flag[i]) on.push_back(i);
+  if (on.empty()) return {0, 1};
+  std::size_t gap = 0, after = on.front();  // largest run of unflagged cells, and where it ends
+  for (std::size_t a = 0; a < on.size(); ++a) {
+    const std::size_t next = a + 1 < on.size() ? on[a + 1] : on.front() + n;
+    if (next - on[a] - 1 > gap) {
+      gap = next - on[a] - 1;
+      after = next % n;
+    }
+  }
+  if (gap == 0) return {0, n};
+  return {signed_index(after, n), n - gap};
+}
+
+Bank build_bank(const ScatteringParams& p, std::size_t n1, std::size_t n2) {
+  Bank bank{n1, n2, {}};
+  const double two_pi = 2.0 * M_PI;
+  for (std::size_t j = 0; j < p.J; ++j) {
+    const double xi = p.xi0 * std::pow(2.0, -static_cast<double>(j));
+    const double sigma = p.sigma0 * std::pow(2.0, static_cast<double>(j));
+    for (std::size_t l = 0; l < p.L; ++l) {
+      const double th = M_PI * static_cast<double>(l) / static_cast<double>(p.L);
+      const double ct = std::cos(th), st = std::sin(th);
+      // g(a, b) = exp(-σ²(a² + b²/s²)/2), summed over the 3×3 periodic images.
+      auto periodised = [&](double k1, double k2, double shift) {
+        double sum = 0.0;
+        for (int a = -1; a <= 1; ++a)
+          for (int b = -1; b <= 1; ++b) {
+            const double q1 = k1 + two_pi * a, q2 = k2 + two_pi * b;
+            const double kpar = q1 * ct + q2 * st - shift, kperp = -q1 * st + q2 * ct;
+            sum += std::exp(-0.5 * sigma * sigma * (kpar * kpar + kperp * kperp / (p.slant * p.slant)));
+          }
+        return sum;
+      };
+      const double beta = periodised(0, 0, xi) / periodised(0, 0, 0);
+      std::vector<double> full(n1 * n2);
+      double peak = 0.0;
+      for (std::size_t i = 0; i < n1; ++i)
+        for (std::size_t k = 0; k < n2; ++k) {
+          const double k1 = two_pi * static_cast<double>(signed_index(i, n1)) / static_cast<double>(n1);
+          const double k2 = two_pi * static_cast<double>(signed_index(k, n2)) / static_cast<double>(n2);
+          const double v = periodised(k1, k2, xi) - beta * periodised(k1, k2, 0);
+          full[i * n2 + k] = v;
+          peak = std::max(peak, std::abs(v));
+        }
+      Filter f;
+      if (!p.crop) {
+        f.w1 = f.m1 = f.u1 = n1;
+        f.w2 = f.m2 = f.u2 = n2;
+      } else {
+        // Box kept in the product, and the (narrower) band whose double must fit the grid of |x⋆ψ|².
+        auto arc = [&](double level, int axis) {
+          std::vector<char> flag(axis == 0 ? n1 : n2, 0);
+          for (std::size_t i = 0; i < n1; ++i)
+            for (std::size_t k = 0; k < n2; ++k)
+              if (std::abs(full[i * n2 + k]) > level * peak) flag[axis == 0 ? i : k] = 1;
+          return covering_arc(flag);
+        };
+        const auto a1 = arc(1e-7, 0), a2 = arc(1e-7, 1);
+        const auto e1 = arc(1e-3, 0), e2 = arc(1e-3, 1);
+        f.b1 = a1.first;
+        f.w1 = a1.second;
+        f.b2 = a2.first;
+        f.w2 = a2.second;
+        f.c1 = f.w1 == n1 ? 0 : f.b1 + static_cast<long>(f.w1 / 2);
+        f.c2 = f.w2 == n2 ? 0 : f.b2 + static_cast<long>(f.w2 / 2);
+        f.m1 = f.w1 == n1 ? n1 : nice_size(std::max(f.w1, 2 * e1.second + 1), n1);
+        f.m2 = f.w2 == n2 ? n2 : nice_size(std::max(f.w2, 2 * e2.second + 1), n2);
+        if (f.m1 == n1) f.w1 = n1, f.b1 = 0, f.c1 = 0;  // nothing to gain: use the whole axis
+        if (f.m2 == n2) f.w2 = n2, f.b2 = 0, f.c2 = 0;
+      }
+      f.value.resize(f.w1 * f.w2);
+      for (std::size_t i = 0; i < f.w1; ++i)
+        for (std::size_t k = 0; k < f.w2; ++k)
+          f.value[i * f.w2 + k] = static_cast<float>(
+              full[wrap(f.b1 + static_cast<long>(i), n1) * n2 + wrap(f.b2 + static_cast<long>(k), n2)]);
+      bank.filters.push_back(std::move(f));
+    }
+  }
+  // A U1 grid must also hold every finer-j2 box it feeds, in its own fftfreq range.
+  for (std::size_t j = 0; j < p.J; ++j)
+    for (std::size_t l = 0; l < p.L; ++l) {
+      Filter& f = bank.filters[j * p.L + l];
+      std::size_t need1 = f.m1, need2 = f.m2;
+      for (std::size_t j2 = j + 1; j2 < p.J; ++j2)
+        for (std::size_t l2 = 0; l2 < p.L; ++l2) {
+          const Filter& g = bank.filters[j2 * p.L + l2];
+          auto need = [](long b, std::size_t w, std::size_t n) -> std::size_t {
+            if (w >= n) return n;
+            const long hi = std::max(std::abs(b), std::abs(b + static_cast<long>(w) - 1));
+            return static_cast<std::size_t>(2 * hi + 2);  // fftfreq of size 2h+2 spans [-(h+1), h]
+          };
+          need1 = std::max(need1, need(g.b1, g.w1, bank.n1));
+          need2 = std::max(need2, need(g.b2, g.w2, bank.n2));
+        }
+      f.u1 = need1 >= bank.n1 ? bank.n1 : nice_size(need1, bank.n1);
+      f.u2 = need2 >= bank.n2 ? bank.n2 : nice_size(need2, bank.n2);
+    }
+  return bank;
+}
+
+/// Half-grid spectrum (r2c) of a real p1 × p2 field, read at any signed index.
+struct HalfSpectrum {
+  std::size_t p1 = 0, p2 = 0, h2 = 0;
+  fft::Buffer<cf> data;
+  cf at(long m1, long m2) const {
+    const long a = wrap(m1, p1), b = wrap(m2, p2);
+    if (static_cast<std::size_t>(b) < h2) return data[static_cast<std::size_t>(a) * h2 + b];
+    return std::conj(data[static_cast<std::size_t>(wrap(-m1, p1)) * h2 + static_cast<std::size_t>(wrap(-m2, p2))]);
+  }
+};
+
+HalfSpectrum forward(const float* real, std::size_t p1, std::size_t p2) {
+  HalfSpectrum s{p1, p2, p2 / 2 + 1, fft::Buffer<cf>(p1 * (p2 / 2 + 1))};
+  fft::r2c_2d(p1, p2, real, s.data.data());
+  return s;
+}
+
+/// |x⋆ψ| on a g1 × g2 grid from the spectrum of x, scaled to the fine-grid definition.
+void modulus_conv(const HalfSpectrum& x, const Filter& f, std::size_t g1, std::size_t g2, fft::Buffer<cf>& work,
+                  float* out) {
+  std::fill(work.data(), work.data() + g1 * g2, cf(0.0f, 0.0f));
+  for (std::size_t i = 0; i < f.w1; ++i) {
+    const long m1 = f.b1 + static_cast<long>(i);
+    cf* row = work.data() + static_cast<std::size_t>(wrap(m1 - f.c1, g1)) * g2;
+    const float* v = f.value.data() + i * f.w2;
+    for (std::size_t k = 0; k < f.w2; ++k) {
+      const long m2 = f.b2 + static_cast<long>(k);
+      row[wrap(m2 - f.c2, g2)] += x.at(m1, m2) * v[k];
+    }
+  }
+  fft::c2c_2d(g1, g2, work.data(), work.data(), fft::Direction::inverse);
+  const float scale = 1.0f / static_cast<float>(x.p1 * x.p2);  // unnormalised inverse of an unnormalised forward
+  for (std::size_t i = 0; i < g1 * g2; ++i) out[i] = std::abs(work[i]) * scale;
+}
+
+double mean(const float* v, std::size_t n) {
+  double s = 0.0;
+  for (std::size_t i = 0; i < n; ++i) s += v[i];
+  return s / static_cast<double>(n);
+}
+
+struct ShapeKey {
+  std::size_t n1, n2;
+  bool operator==(const ShapeKey&) const = default;
+};
+
+class ScatteringKernel final : public Kernel {
+ public:
+  explicit ScatteringKernel(ScatteringParams p) : p_(p) {}
+  const std::string& name() const override { return name_; }
+  UnitKind unit_kind() const override { return UnitKind::slice; }
+
+  void check(const Geometry& g) const override {
+    require_dims(name_, g, UnitKind::slice);
+    const std::size_t need = std::size_t{1} << p_.J;
+    if (g.shape[0] < need || g.shape[1] < need)
+      throw InputError("stats.scattering.scales = " + std::to_string(p_.J) + " needs slices of at least " +
+                       std::to_string(need) + " × " + std::to_string(need) + " cells (2^scales), got " +
+                       shape_text(g.shape));
+  }
+
+  std::size_t n_coeff(const Geometry&) const override {
+    const std::size_t J = p_.J, L = p_.L, pairs = J * (J - 1) / 2;
+    return p_.rotation ? 1 + J + pairs * L : 1 + J * L + pairs * L * L;
+  }
+
+  std::vector<Axis> axes(const Geometry& g) const override {
+    std::vector<std::int64_t> order, j1, l1, j2, l2;
+    auto push = [&](int o, long a, long b, long c, long d) {
+      order.push_back(o), j1.push_back(a), l1.push_back(b), j2.push_back(c), l2.push_back(d);
+    };
+    const long J = static_cast<long>(p_.J), L = static_cast<long>(p_.L);
+    push(0, -1, -1, -1, -1);
+    for (long j = 0; j < J; ++j)
+      for (long l = 0; l < (p_.rotation ? 1 : L); ++l) push(1, j, p_.rotation ? -1 : l, -1, -1);
+    for (long a = 0; a < J; ++a)
+      for (long la = 0; la < (p_.rotation ? 1 : L); ++la)
+        for (long b = a + 1; b < J; ++b)
+          for (long lb = 0; lb < L; ++lb) push(2, a, p_.rotation ? -1 : la, b, lb);
+    (void)g;
+    return {{"order", order}, {"j1", j1}, {"l1", l1}, {"j2", j2}, {"l2", l2}};
+  }
+
+  std::vector<double> measure(const float* data, const Geometry& g) const override {
+    check(g);
+    const std::size_t n1 = g.shape[0], n2 = g.shape[1], J = p_.J, L = p_.L;
+    auto bank = cache_.get(ShapeKey{n1, n2}, [&] { return build_bank(p_, n1, n2); });
+    const auto x = forward(data, n1, n2);
+    fft::Buffer<cf> work(n1 * n2);
+    fft::Buffer<float> u1(n1 * n2), u2(n1 * n2);
+
+    const double s0 = mean(data, n1 * n2);
+    std::vector<double> s1(J * L);
+    std::vector<double> s2(J * L * J * L, 0.0);  // [j1][l1][j2][l2], j2 > j1 filled
+    for (std::size_t ja = 0; ja < J; ++ja)
+      for (std::size_t la = 0; la < L; ++la) {
+        const Filter& fa = bank->filters[ja * L + la];
+        modulus_conv(x, fa, fa.u1, fa.u2, work, u1.data());
+        s1[ja * L + la] = mean(u1.data(), fa.u1 * fa.u2);
+        if (ja + 1 == J) continue;
+        const auto ux = forward(u1.data(), fa.u1, fa.u2);
+        for (std::size_t jb = ja + 1; jb < J; ++jb)
+          for (std::size_t lb = 0; lb < L; ++lb) {
+            const Filter& fb = bank->filters[jb * L + lb];
+            modulus_conv(ux, fb, fb.m1, fb.m2, work, u2.data());
+            s2[((ja * L + la) * J + jb) * L + lb] = mean(u2.data(), fb.m1 * fb.m2);
+          }
+      }
+    if (p_.normalise)
+      for (std::size_t a = 0; a < J * L; ++a)
+        for (std::size_t b = 0; b < J * L; ++b) s2[a * J * L + b] = s1[a] > 0 ? s2[a * J * L + b] / s1[a] : std::nan("");
+
+    std::vector<double> out{s0};
+    if (!p_.rotation) {
+      out.insert(out.end(), s1.begin(), s1.end());
+      for (std::size_t ja = 0; ja < J; ++ja)
+        for (std::size_t la = 0; la < L; ++la)
+          for (std::size_t jb = ja + 1; jb < J; ++jb)
+            for (std::size_t lb = 0; lb < L; ++lb) out.push_back(s2[((ja * L + la) * J + jb) * L + lb]);
+    } else {
+      for (std::size_t j = 0; j < J; ++j)
+        out.push_back(std::accumulate(s1.begin() + j * L, s1.begin() + (j + 1) * L, 0.0) / static_cast<double>(L));
+      for (std::size_t ja = 0; ja < J; ++ja)
+        for (std::size_t jb = ja + 1; jb < J; ++jb)
+          for (std::size_t d = 0; d < L; ++d) {
+            double sum = 0.0;
+            for (std::size_t la = 0; la < L; ++la) sum += s2[((ja * L + la) * J + jb) * L + (la + d) % L];
+            out.push_back(sum / static_cast<double>(L));
+          }
+    }
+    return out;
+  }
+
+  Attributes attributes() const override {
+    return {{"kernel", std::string("wavelet scattering")},
+            {"scales", static_cast<std::int64_t>(p_.J)},
+            {"orientations", static_cast<std::int64_t>(p_.L)},
+            {"reduce", std::string(p_.rotation ? "rotation" : "none")},
+            {"normalise", std::int64_t{p_.normalise ? 1 : 0}},
+            {"xi0", p_.xi0},
+            {"sigma0", p_.sigma0},
+            {"slant", p_.slant},
+            {"crop", p_.crop}};
+  }
+
+ private:
+  std::string name_ = "scattering";
+  ScatteringParams p_;
+  TableCache<ShapeKey, Bank> cache_;
+};
+
+}  // namespace
+
+std::unique_ptr<Kernel> make_scattering(const core::Config& c) {
+  const std::string t = "stats.scattering";
+  ScatteringParams p;
+  p.J = static_cast<std::size_t>(c.integer(t + ".scales"));
+  p.L = static_cast<std::size_t>(c.integer(t + ".orientations"));
+  p.xi0 = c.real(t + ".xi0");
+  p.sigma0 = c.real(t + ".sigma0");
+  p.slant = c.real(t + ".slant") > 0.0 ? c.real(t + ".slant") : 4.0 / static_cast<double>(p.L);
+  p.rotation = c.string(t + ".reduce") == "rotation";
+  p.normalise = c.boolean(t + ".normalise");
+  p.crop = c.boolean(t + ".crop");
+  return std::make_unique<ScatteringKernel>(p);
+}
+
+}  // namespace spinflip::stats::detail

@@ -1,0 +1,103 @@
+// Internal helpers shared by the three verbs.
+#pragma once
+#include <cstdint>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "analysis/analysis.hpp"
+#include "analysis/h5.hpp"
+
+namespace spinflip::analysis::detail {
+
+/// Done entries of one point, sorted by realisation. Pending entries are an
+/// InputError unless allow_incomplete; failed ones are skipped with a warning.
+std::vector<std::size_t> done_entries(const Catalogue& cat, std::int64_t point, bool allow_incomplete,
+                                      const std::string& what);
+
+/// The fiducial design point: the only one with role `fiducial`, or `chosen`.
+std::int64_t fiducial_point(const Catalogue& cat, std::optional<std::int64_t> chosen);
+
+/// Every --select resolved (one "all" selection when none is given).
+std::vector<Selection> selections(const Catalogue& cat, const std::vector<std::string>& texts);
+
+/// Drop columns that are NaN in every row of `reference` or constant there
+/// (empty bins, k = 0 terms), noting them in the selection; a NaN in some rows
+/// only is an InputError. `others` lose the same columns.
+void drop_degenerate(const Catalogue& cat, Selection& sel, Eigen::MatrixXd& reference,
+                     std::vector<Eigen::MatrixXd*> others);
+
+/// A transform fitted on the fiducial rows and applied to any rows.
+struct Transformer {
+  Transform kind = Transform::none;
+  Eigen::VectorXd mean, sd;
+  void fit(const Eigen::MatrixXd& fiducial);
+  void apply(Eigen::MatrixXd& X, const std::string& what) const;
+  std::string describe() const;
+};
+
+/// Refuse an inverse from too few realisations, saying how many are needed.
+void require_realisations(std::size_t n, std::size_t p, const std::string& selection, bool shrink);
+
+/// /<group>/selection: text, name, record and one label per element.
+void write_selection(hid_t group, const Catalogue& cat, const Selection& sel);
+
+/// Root attributes every output carries: tool, time, source catalogue.
+void write_output_header(hid_t file, const Catalogue& cat, const std::string& kind);
+
+/// Run python/plots/<script> with args; on failure warn and return false.
+bool run_plot(const std::string& script, const std::vector<std::string>& args);
+
+/// out.h5 → out<suffix>.png
+std::string derived_png(const std::string& output, const std::string& suffix);
+
+std::string now_utc();
+
+/// The stencil around a fiducial point: one central-difference pair per
+/// (parameter, step index), with realisation-matched done entries.
+struct StencilPair {
+  std::size_t param;
+  std::int64_t step_index;
+  std::int64_t plus, minus;       // design points
+  double delta;                   // θ+ − θ− in Fisher coordinates (log10 for log parameters)
+  std::vector<std::size_t> plus_entries, minus_entries;  // same realisation, row by row
+};
+struct Stencil {
+  std::int64_t fiducial;
+  std::vector<std::size_t> fiducial_entries;
+  std::vector<std::size_t> params;     // parameters with a pair at the chosen step
+  std::int64_t step_index;
+  std::vector<StencilPair> pairs;      // every step index
+  const StencilPair* find(std::size_t param, std::int64_t step) const;
+  std::vector<std::int64_t> step_indices() const;
+};
+Stencil stencil(const Catalogue& cat, std::optional<std::int64_t> point, std::optional<std::int64_t> step_index,
+                bool allow_incomplete);
+
+/// Everything a Fisher forecast of one selection needs, after degenerate
+/// columns are dropped and the transform applied.
+struct FisherModel {
+  Selection selection;
+  Eigen::MatrixXd fiducial;          // n_fid × d rows
+  std::vector<Eigen::MatrixXd> diff;  // per pair in stencil.pairs: (x+ − x−)/Δ per matched realisation
+  Eigen::VectorXd mean;
+  Eigen::MatrixXd cov, precision;    // precision includes the Hartlap factor (unless shrunk)
+  double hartlap = 1;
+  Eigen::MatrixXd derivatives;       // d × n_fisher_params at the chosen step
+  Eigen::MatrixXd fisher;
+  Transformer transform;
+};
+FisherModel fisher_model(const Catalogue& cat, const Selection& sel, const Stencil& st, Transform transform,
+                         bool shrink);
+/// Names in Fisher coordinates: "log10(name)" for log parameters.
+std::string fisher_param_name(const Design& d, std::size_t i);
+
+/// Row-major copies, as HDF5 stores them.
+inline std::vector<double> flat(const Eigen::MatrixXd& m) {
+  std::vector<double> out(static_cast<std::size_t>(m.size()));
+  Eigen::Map<Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>>(out.data(), m.rows(), m.cols()) = m;
+  return out;
+}
+inline std::vector<double> flat(const Eigen::VectorXd& v) { return {v.data(), v.data() + v.size()}; }
+
+}  // namespace spinflip::analysis::detail

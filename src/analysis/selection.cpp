@@ -1,0 +1,231 @@
+// The --select syntax (docs/analysis.md): terms `key=value` separated by ';'.
+//   name=LABEL  kernel=K[,K]  scenario=S[,S]  freq=LO:HI  z=LO:HI  unit=I[,I]|LO:HI
+//   every=N  <axis>=V[,V]|LO:HI   (any coefficient axis: order, j1, k_mean, n_modes, …)
+#include <algorithm>
+#include <cmath>
+#include <cstdlib>
+#include <limits>
+#include <optional>
+#include <set>
+#include <sstream>
+
+#include "analysis/analysis.hpp"
+#include "core/errors.hpp"
+
+namespace spinflip::analysis {
+namespace {
+
+std::string trim(const std::string& s) {
+  const auto a = s.find_first_not_of(" \t");
+  if (a == std::string::npos) return {};
+  return s.substr(a, s.find_last_not_of(" \t") - a + 1);
+}
+
+std::vector<std::string> split(const std::string& s, char sep) {
+  std::vector<std::string> out;
+  std::stringstream ss(s);
+  std::string part;
+  while (std::getline(ss, part, sep)) out.push_back(trim(part));
+  return out;
+}
+
+std::string join(const std::vector<std::string>& v, const std::string& sep = ", ") {
+  std::string out;
+  for (std::size_t i = 0; i < v.size(); ++i) out += (i ? sep : "") + v[i];
+  return out;
+}
+
+/// A value filter: an inclusive range (open ends allowed) or a list of values.
+struct Filter {
+  std::string key;
+  std::optional<double> lo, hi;
+  std::vector<double> values;
+  bool is_range = false;
+  bool accepts(double v) const {
+    if (is_range) return (!lo || v >= *lo) && (!hi || v <= *hi);
+    return std::any_of(values.begin(), values.end(),
+                       [&](double a) { return std::abs(v - a) <= 1e-9 * std::max(1.0, std::abs(a)); });
+  }
+};
+
+double number(const std::string& text, const std::string& key, const std::string& sel) {
+  char* end = nullptr;
+  const double v = std::strtod(text.c_str(), &end);
+  if (text.empty() || end != text.c_str() + text.size() || !std::isfinite(v))
+    throw InputError("--select '" + sel + "': " + key + "=" + text + " is not a number (ranges are LO:HI, lists V1,V2)");
+  return v;
+}
+
+Filter parse_filter(const std::string& key, const std::string& value, const std::string& sel) {
+  Filter f;
+  f.key = key;
+  if (value.find(':') != std::string::npos) {
+    const auto parts = split(value, ':');
+    if (parts.size() != 2)
+      throw InputError("--select '" + sel + "': " + key + "=" + value + " is not a range LO:HI");
+    f.is_range = true;
+    if (!parts[0].empty()) f.lo = number(parts[0], key, sel);
+    if (!parts[1].empty()) f.hi = number(parts[1], key, sel);
+  } else {
+    for (const auto& p : split(value, ',')) f.values.push_back(number(p, key, sel));
+    if (f.values.empty()) throw InputError("--select '" + sel + "': " + key + "= needs a value");
+  }
+  return f;
+}
+
+}  // namespace
+
+Selection select(const Catalogue& catalogue, const std::string& text, std::size_t index) {
+  const auto& blocks = catalogue.blocks();
+  std::set<std::string> all_kernels, all_scenarios;
+  for (const auto& b : blocks) {
+    all_kernels.insert(b.kernel);
+    all_scenarios.insert(b.scenario);
+  }
+  Selection sel;
+  sel.text = trim(text);
+  std::vector<std::string> kernels, scenarios;
+  std::optional<Filter> freq, z, unit;
+  std::size_t every = 1;
+  std::vector<Filter> axis_filters;
+  std::vector<std::string> described;
+  for (const auto& term : split(text, ';')) {
+    if (term.empty()) continue;
+    const auto eq = term.find('=');
+    if (eq == std::string::npos)
+      throw InputError("--select '" + text + "': term '" + term +
+                       "' is not key=value (keys: name, kernel, scenario, freq, z, unit, every, or a coefficient axis)");
+    const std::string key = trim(term.substr(0, eq)), value = trim(term.substr(eq + 1));
+    if (key == "name") {
+      if (value.empty() || value.find('/') != std::string::npos)
+        throw InputError("--select '" + text + "': name='" + value + "' must be non-empty and without '/'");
+      sel.name = value;
+      continue;
+    }
+    described.push_back(term);
+    if (key == "kernel" || key == "scenario") {
+      auto& list = key == "kernel" ? kernels : scenarios;
+      const auto& allowed = key == "kernel" ? all_kernels : all_scenarios;
+      for (const auto& v : split(value, ',')) {
+        if (!allowed.count(v))
+          throw InputError("--select '" + text + "': unknown " + key + " '" + v + "' in " + catalogue.path() +
+                           " (allowed: " + join({allowed.begin(), allowed.end()}) + ")");
+        list.push_back(v);
+      }
+    } else if (key == "freq") {
+      freq = parse_filter(key, value, text);
+    } else if (key == "z") {
+      z = parse_filter(key, value, text);
+    } else if (key == "unit") {
+      unit = parse_filter(key, value, text);
+    } else if (key == "every") {
+      const double v = number(value, key, text);
+      if (v < 1 || v != std::floor(v) || v > 1e9)
+        throw InputError("--select '" + text + "': every=" + value + " must be a whole number ≥ 1");
+      every = static_cast<std::size_t>(v);
+    } else {
+      axis_filters.push_back(parse_filter(key, value, text));
+    }
+  }
+  if (sel.name.empty()) {
+    sel.name = described.empty() ? "all" : join(described, " ");
+    if (sel.name.size() > 48) sel.name = "sel" + std::to_string(index + 1);
+  }
+
+  std::set<std::string> axes_seen;
+  std::vector<std::size_t> chosen;
+  for (std::size_t b = 0; b < blocks.size(); ++b) {
+    const auto& blk = blocks[b];
+    if (!kernels.empty() && std::find(kernels.begin(), kernels.end(), blk.kernel) == kernels.end()) continue;
+    if (!scenarios.empty() && std::find(scenarios.begin(), scenarios.end(), blk.scenario) == scenarios.end()) continue;
+    chosen.push_back(b);
+    for (const auto& [name, v] : blk.axes) axes_seen.insert(name);
+  }
+  for (const auto& f : axis_filters)
+    if (!axes_seen.count(f.key))
+      throw InputError("--select '" + text + "': '" + f.key +
+                       "' is neither a selection key (name, kernel, scenario, freq, z, unit, every) nor a coefficient "
+                       "axis of the selected kernels (axes: " + join({axes_seen.begin(), axes_seen.end()}) + ")");
+  for (std::size_t b : chosen) {
+    const auto& blk = blocks[b];
+    std::vector<std::size_t> units;
+    for (std::size_t u = 0; u < blk.n_units; ++u) {
+      auto need = [&](const std::vector<double>& axis, const char* what) {
+        if (axis.size() != blk.n_units)
+          throw InputError(catalogue.path() + ": /stats/" + blk.scenario + "/" + blk.kernel + " has no " + what +
+                           " dataset, so --select '" + text + "' cannot filter it");
+        return axis[u];
+      };
+      if (freq && !freq->accepts(need(blk.unit_freq_MHz, "unit_freq_MHz"))) continue;
+      if (z && !z->accepts(need(blk.unit_z, "unit_z"))) continue;
+      if (unit && !unit->accepts(static_cast<double>(u))) continue;
+      units.push_back(u);
+    }
+    std::vector<std::size_t> coeffs;
+    for (std::size_t c = 0; c < blk.n_coeff; ++c) {
+      bool ok = true;
+      for (const auto& f : axis_filters) {
+        auto it = blk.axes.find(f.key);
+        if (it != blk.axes.end() && !f.accepts(it->second[c])) ok = false;
+      }
+      if (ok) coeffs.push_back(c);
+    }
+    for (std::size_t k = 0; k < units.size(); k += every)
+      for (std::size_t c : coeffs) sel.elements.push_back({b, units[k], c});
+  }
+  if (sel.elements.empty())
+    throw InputError("--select '" + text + "' matches no coefficient in " + catalogue.path() +
+                     " (kernels: " + join({all_kernels.begin(), all_kernels.end()}) +
+                     "; scenarios: " + join({all_scenarios.begin(), all_scenarios.end()}) + ")");
+  return sel;
+}
+
+std::vector<std::string> element_labels(const Catalogue& catalogue, const Selection& selection) {
+  std::vector<std::string> out;
+  out.reserve(selection.elements.size());
+  for (const auto& el : selection.elements) {
+    const auto& blk = catalogue.blocks()[el.block];
+    std::ostringstream os;
+    os.precision(6);
+    os << blk.scenario << "/" << blk.kernel << " u" << el.unit;
+    if (blk.unit_freq_MHz.size() == blk.n_units) os << " f=" << blk.unit_freq_MHz[el.unit] << "MHz";
+    if (blk.unit_z.size() == blk.n_units) os << " z=" << blk.unit_z[el.unit];
+    for (const auto& [name, v] : blk.axes) os << " " << name << "=" << v[el.coeff];
+    out.push_back(os.str());
+  }
+  return out;
+}
+
+std::string selection_record(const Catalogue& catalogue, const Selection& selection) {
+  std::ostringstream os;
+  os << "selection '" << selection.name << "' (--select '" << selection.text << "'): "
+     << selection.elements.size() << " coefficients\n";
+  std::size_t i = 0;
+  const auto& els = selection.elements;
+  while (i < els.size()) {
+    const std::size_t b = els[i].block;
+    std::set<std::size_t> units, coeffs;
+    std::size_t n = 0;
+    for (; i < els.size() && els[i].block == b; ++i, ++n) {
+      units.insert(els[i].unit);
+      coeffs.insert(els[i].coeff);
+    }
+    const auto& blk = catalogue.blocks()[b];
+    os << "  " << blk.scenario << "/" << blk.kernel << ": " << n << " values = " << units.size() << " "
+       << (blk.unit_kind.empty() ? "unit" : blk.unit_kind) << "s [";
+    std::size_t k = 0;
+    for (auto u : units) os << (k++ ? "," : "") << u;
+    os << "] x " << coeffs.size() << " of " << blk.n_coeff << " coefficients\n";
+  }
+  for (const auto& note : selection.notes) os << "  note: " << note << "\n";
+  return os.str();
+}
+
+Transform parse_transform(const std::string& text) {
+  if (text == "none" || text.empty()) return Transform::none;
+  if (text == "log") return Transform::log;
+  if (text == "standardise" || text == "standardize") return Transform::standardise;
+  throw InputError("--transform '" + text + "' is not allowed (allowed: none, log, standardise)");
+}
+
+}  // namespace spinflip::analysis

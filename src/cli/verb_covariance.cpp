@@ -1,0 +1,24 @@
+// spinflip covariance CATALOGUE --select … -o cov.h5
+#include "analysis/cli_options.hpp"
+#include "cli/verbs.hpp"
+
+namespace spinflip::cli {
+namespace {
+RegisterVerb covariance_verb(
+    "covariance", "mean, covariance, correlation and Hartlap-corrected inverse from the fiducial realisations", 60,
+    [](CLI::App& sub) -> VerbRun {
+      auto o = std::make_shared<analysis::CovarianceOptions>();
+      auto c = std::make_shared<analysis::CliCommon>();
+      o->output = "covariance.h5";
+      analysis::add_common_options(sub, *o, *c);
+      sub.add_option("-o,--output", o->output, "output HDF5 file");
+      sub.add_flag("--shrink", o->shrink, "Ledoit-Wolf (2004) shrinkage towards a scaled identity");
+      return [=]() {
+        if (world_rank() != 0) return 0;  // serial analysis: rank 0 does it
+        analysis::finish_common(*o, *c);
+        analysis::run_covariance(*o);
+        return 0;
+      };
+    });
+}  // namespace
+}  // namespace spinflip::cli

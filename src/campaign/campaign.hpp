@@ -41,16 +41,26 @@ struct Entry {
   std::size_t realisation = 0;
 };
 
+/// One [[designs]] block as made: its points are [first_point, first_point + points).
+struct DesignSummary {
+  std::string kind, name;
+  std::size_t first_point = 0, points = 0, realisations = 1;
+  std::size_t entries() const { return points * realisations; }
+};
+
 class Campaign {
  public:
   /// Parse and validate the file and every design; ConfigError on any problem.
   static Campaign load(const std::filesystem::path& file);
   static Campaign from_string(std::string text, std::string source_name);
+  /// Same against another schema (tests with their own 'can vary' keys).
+  static Campaign from_string(std::string text, std::string source_name, const core::Schema& schema);
 
   const core::Config& config() const;
   const std::vector<Parameter>& parameters() const;
   const std::vector<DesignPoint>& points() const;
   const std::vector<Entry>& entries() const;
+  const std::vector<DesignSummary>& designs() const;
 
   /// The campaign's configuration with point `i`'s parameter values applied.
   core::Config config_for_point(std::size_t point) const;
@@ -58,6 +68,8 @@ class Campaign {
   /// points share the fiducial's seeds (DESIGN.md §3).
   rng::EntryKey entry_key(const Entry& entry) const;
   /// sha256 of the normalised campaign text: a catalogue's identity for resume.
+  /// With list designs, the bytes of their CSV files follow the text in the hash,
+  /// so an edited point list is a different campaign (docs/campaign.md).
   std::string sha256() const;
   std::filesystem::path output_path() const;
 

@@ -1,5 +1,18 @@
 #include "campaign/schema.hpp"
 
+#ifdef SPINFLIP_HAVE_COSMO
+#include "cosmo/cosmology.hpp"
+#endif
+#ifdef SPINFLIP_HAVE_SIM
+#include "sim/lightcone.hpp"
+#endif
+#ifdef SPINFLIP_HAVE_INSTRUMENT
+#include "instrument/instrument.hpp"
+#endif
+#ifdef SPINFLIP_HAVE_STATS
+#include "stats/stats.hpp"
+#endif
+
 namespace spinflip::campaign {
 
 using core::KeySpec;
@@ -21,26 +34,65 @@ void declare_keys(core::Schema& s) {
          .min = 0.1, .doc = "how often rank 0 logs progress and rewrites the progress file"});
 
   s.add_table("parameters.*",
-              "A varied astrophysical or cosmological parameter; the table name is the key it varies "
-              "(any key marked 'can vary').");
+              "A varied astrophysical or cosmological parameter; the table name is the leaf name of the key "
+              "it varies (any key marked 'can vary', e.g. [parameters.ionizing_efficiency]).");
   s.add({.path = "parameters.*.min", .type = ValueType::real, .doc = "lower bound of the design range"});
   s.add({.path = "parameters.*.max", .type = ValueType::real, .doc = "upper bound of the design range"});
   s.add({.path = "parameters.*.fiducial", .type = ValueType::real,
          .doc = "fiducial value (covariance realisations and stencil centre)"});
   s.add({.path = "parameters.*.log", .type = ValueType::boolean, .default_value = false,
-         .doc = "sample the design uniformly in log10 of the parameter"});
+         .doc = "sample the design uniformly in log10 of the parameter (needs min > 0)"});
   s.add({.path = "parameters.*.step", .type = ValueType::real, .default_value = 0.05, .min = 0.0,
          .min_exclusive = true, .doc = "stencil half-step: a fraction of the fiducial, or absolute if step_absolute"});
   s.add({.path = "parameters.*.step_absolute", .type = ValueType::boolean, .default_value = false,
          .doc = "treat step as an absolute offset in the parameter's unit"});
   s.add({.path = "parameters.*.label", .type = ValueType::string, .default_value = std::string(""),
          .doc = "axis label for plots (defaults to the parameter name)"});
+
+  // [[designs]]: an array of tables; `*` is the block's index (designs.0.kind).
+  s.add_table("designs.*", "One block of design points ([[designs]], any number, in order): a training design "
+                           "(latin_hypercube, sobol, grid), a fiducial point, a derivative stencil or a CSV list.");
+  s.add({.path = "designs.*.kind", .type = ValueType::string,
+         .choices = {"latin_hypercube", "sobol", "grid", "fiducial", "stencil", "list"},
+         .doc = "what the block makes (see docs/campaign.md)"});
+  s.add({.path = "designs.*.name", .type = ValueType::string, .default_value = std::string(""),
+         .doc = "label shown by plan and status (defaults to the kind)"});
+  s.add({.path = "designs.*.points", .type = ValueType::integer, .default_value = std::int64_t{0}, .min = 0,
+         .max = 1e8, .doc = "number of points (latin_hypercube, sobol; required there)"});
+  s.add({.path = "designs.*.realisations", .type = ValueType::integer, .default_value = std::int64_t{1}, .min = 1,
+         .max = 1e6, .doc = "realisations (independent seeds) per point"});
+  s.add({.path = "designs.*.scramble", .type = ValueType::boolean, .default_value = true,
+         .doc = "sobol: linear matrix scramble + digital shift; latin_hypercube: random position in each "
+                "stratum (false: stratum centres)"});
+  s.add({.path = "designs.*.points_per_dim", .type = ValueType::integer_array,
+         .default_value = std::vector<std::int64_t>{}, .min = 1, .max = 10000,
+         .doc = "grid: points along each parameter (one value for all, or one per parameter)"});
+  s.add({.path = "designs.*.parameters", .type = ValueType::string_array,
+         .default_value = std::vector<std::string>{},
+         .doc = "stencil: the parameters to step (empty: all)"});
+  s.add({.path = "designs.*.step_factors", .type = ValueType::real_array, .default_value = std::vector<double>{1.0},
+         .min = 0.0, .min_exclusive = true,
+         .doc = "stencil: multiples of each parameter's step, one stencil per factor (convergence check)"});
+  s.add({.path = "designs.*.file", .type = ValueType::string, .default_value = std::string(""),
+         .doc = "list: CSV of points, header = parameter names, relative to the campaign file"});
 }
 
 const core::Schema& campaign_schema() {
   static const core::Schema schema = [] {
     core::Schema s;
     declare_keys(s);
+#ifdef SPINFLIP_HAVE_COSMO
+    cosmo::declare_keys(s);
+#endif
+#ifdef SPINFLIP_HAVE_SIM
+    sim::declare_keys(s);
+#endif
+#ifdef SPINFLIP_HAVE_INSTRUMENT
+    instrument::declare_keys(s);
+#endif
+#ifdef SPINFLIP_HAVE_STATS
+    stats::declare_keys(s);
+#endif
     return s;
   }();
   return schema;

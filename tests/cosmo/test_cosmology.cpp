@@ -42,6 +42,17 @@ TEST(Cosmology, GrowthMatchesHeathIntegralWithoutRadiation) {
   for (double z : {0.0, 1.0, 3.0}) EXPECT_NEAR(c.growth_rate(z), std::pow(c.omega_m_at(z), 0.55), 0.01);
 }
 
+// Carroll, Press & Turner (1992) eq. 29 approximation, stated good to ~1%:
+// g = 2.5 Ωm / [Ωm^{4/7} − ΩΛ + (1 + Ωm/2)(1 + ΩΛ/70)], D = g(z) / (g(0)(1+z)).
+TEST(Cosmology, GrowthWithinOnePercentOfCarrollPressTurner) {
+  const cosmo::Cosmology c;
+  auto g = [&](double z) {
+    const double om = c.omega_m_at(z), e = c.E(z), ol = c.omega_lambda() / (e * e);
+    return 2.5 * om / (std::pow(om, 4.0 / 7.0) - ol + (1 + om / 2) * (1 + ol / 70));
+  };
+  for (double z : {0.5, 1.0, 3.0, 8.0, 15.0}) EXPECT_NEAR(c.growth_factor(z), g(z) / (g(0) * (1 + z)), 0.01 * c.growth_factor(z)) << z;
+}
+
 // Radiation (0.3% of the matter density at z = 10) slows growth at early times,
 // so less growth happens between z = 10 and today and the normalised D(10) is higher.
 TEST(Cosmology, RadiationSlowsEarlyGrowthSlightly) {
@@ -85,6 +96,11 @@ TEST(Cosmology, EisensteinHuScales) {
   // E&H (1998) eq. 26 approximates the sound horizon of eq. 6 to ~2%.
   const double s_fit = 44.5 * std::log(9.83 / om) / std::sqrt(1 + 10 * std::pow(ob, 0.75));
   EXPECT_NEAR(c.sound_horizon_mpc() / s_fit, 1.0, 0.02);
+  // E&H (1998) eq. 7, the Silk damping scale as printed.
+  const double k_silk = 1.6 * std::pow(ob, 0.52) * std::pow(om, 0.73) * (1 + std::pow(10.4 * om, -0.95));
+  EXPECT_NEAR(c.k_silk_mpc(), k_silk, 1e-12 * k_silk);
+  // Damping sets in well inside the sound horizon: k_silk s ≫ 1.
+  EXPECT_GT(c.k_silk_mpc() * c.sound_horizon_mpc(), 5.0);
   // Boltzmann codes give r_drag ≈ 147 Mpc for Planck 2018 (from memory); the E&H eq. 4 drag
   // redshift puts their eq. 6 a few per cent higher.
   EXPECT_GT(c.sound_horizon_mpc(), 145.0);

@@ -347,6 +347,7 @@ Catalogue Catalogue::create(const fs::path& path, const Layout& L, MPI_Comm comm
     const hsize_t np = L.parameters.size(), npts = L.points.size(), ne = L.entries.size(), nz = L.history_z.size();
     {
       Handle g = c.group(file, "design");
+      h5::write_attribute(g, "designs", L.design_names);
       std::vector<std::string> names, units, roles;
       std::vector<std::int8_t> logs;
       std::vector<double> pmin, pmax, pfid;

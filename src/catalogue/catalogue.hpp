@@ -71,6 +71,7 @@ struct Layout {
   std::string campaign_sha256, campaign_text, campaign_file;
   std::vector<Attribute> attributes;  // further root attributes (campaign name, ...)
   std::vector<ParameterInfo> parameters;
+  std::vector<std::string> design_names;  // one per [[designs]] block, e.g. "latin_hypercube"
   std::vector<PointInfo> points;
   std::vector<EntryInfo> entries;
   std::vector<double> history_z;
@@ -124,6 +125,7 @@ struct Failure {
 };
 struct DesignCount {
   std::int32_t design_index = 0;
+  std::string name;  // from /design's `designs` attribute
   std::size_t done = 0, failed = 0, pending = 0;
 };
 struct KernelShape {

@@ -74,7 +74,12 @@ Summary summarise(const fs::path& path) {
       ++s.pending, ++c.pending;
     }
   }
-  for (auto& [d, c] : per_design) s.designs.push_back(c);
+  std::vector<std::string> names;
+  if (h5::has_attribute(design, "designs")) names = h5::read_strings_attribute(design, "designs");
+  for (auto& [d, c] : per_design) {
+    if (d >= 0 && static_cast<std::size_t>(d) < names.size()) c.name = names[static_cast<std::size_t>(d)];
+    s.designs.push_back(c);
+  }
 
   Handle stats = h5::group(SPINFLIP_H5_ID(H5Gopen2(file, "stats", H5P_DEFAULT)));
   for (const auto& scenario : h5::read_strings_attribute(stats, "scenarios")) {

@@ -37,6 +37,7 @@ for ranks in (1, 2):
             check([s.decode() for s in d["param_names"][()]] == ["zeta", "r_mfp"], "param_names")
             check(list(d["param_log"][()]) == [1, 0], "param_log")
             check(d["points"].shape == (3, 2) and d["points"].dtype == np.float64, "points shape/dtype")
+            check(list(d.attrs["designs"]) == ["fiducial", "stencil"], "design names attribute")
             check([s.decode() for s in d["role"][()]] == ["fiducial", "stencil+", "stencil-"], "role")
             check(list(d["stencil_step"][()]) == [0.0, 1.5, -1.5], "stencil_step")
             check(list(d["seed_point"][()]) == [0, 0, 0], "seed_point")

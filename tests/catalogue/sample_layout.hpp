@@ -15,6 +15,7 @@ inline Layout sample_layout(const std::string& sha = std::string(64, 'a')) {
   L.campaign_file = "sample.toml";
   L.attributes = {{"campaign_name", std::string("sample")}};
   L.parameters = {{"zeta", "", true, 10, 100, 30}, {"r_mfp", "Mpc", false, 5, 50, 20}};
+  L.design_names = {"fiducial", "stencil"};
   L.points = {{{30, 20}, "fiducial", 0, -1, -1, 0, 0},
               {{31.5, 20}, "stencil+", 1, 0, 0, 1.5, 0},
               {{28.5, 20}, "stencil-", 1, 0, 0, -1.5, 0}};

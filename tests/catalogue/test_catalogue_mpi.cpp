@@ -90,6 +90,7 @@ TEST(CatalogueMpi, RowsFromEveryRankLandWhereTheyBelong) {
     ASSERT_EQ(s.designs.size(), 2u);  // design 0: fiducial (entries 0-2), design 1: stencil (3-8)
     EXPECT_EQ(s.designs[0].done, 3u);
     EXPECT_EQ(s.designs[1].done, 4u);
+    EXPECT_EQ(s.designs[1].name, "stencil");
     EXPECT_EQ(s.designs[1].failed, 1u);
     EXPECT_EQ(s.designs[1].pending, 1u);
     ASSERT_EQ(s.kernels.size(), 3u);

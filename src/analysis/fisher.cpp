@@ -159,9 +159,13 @@ Eigen::MatrixXd half_mean(const Eigen::MatrixXd& diff) {
 }
 
 /// Coulton & Wandelt (2023): the compressed estimator compresses with one half
-/// of the derivative realisations and measures with the other (biased low);
-/// the geometric mean with the standard estimator (biased high) is the combined one.
-Eigen::MatrixXd compressed_fisher(const detail::FisherModel& m, const detail::Stencil& st) {
+/// of the derivative realisations and measures the compressed derivative with
+/// the other (biased low); the geometric mean with the standard estimator
+/// (biased high) is the combined one. The compression's covariance and the
+/// compressed statistic's covariance come from disjoint halves of the
+/// fiducial realisations, so the second is an honest estimate of WᵀCW. All
+/// four assignments of halves are averaged.
+Eigen::MatrixXd compressed_fisher(const detail::FisherModel& m, const detail::Stencil& st, bool shrink) {
   const auto np = static_cast<Eigen::Index>(st.params.size());
   const auto d = m.fiducial.cols();
   Eigen::MatrixXd DA(d, np), DB(d, np);
@@ -173,19 +177,28 @@ Eigen::MatrixXd compressed_fisher(const detail::FisherModel& m, const detail::St
     DA.col(j) = diff.topRows(h).colwise().mean().transpose();
     DB.col(j) = diff.bottomRows(diff.rows() - h).colwise().mean().transpose();
   }
+  const Eigen::Index n = m.fiducial.rows(), h = n / 2;
+  if (!shrink && static_cast<std::size_t>(h) < static_cast<std::size_t>(d) + 3)
+    throw InputError("--combined splits the fiducial realisations in halves: " + std::to_string(h) +
+                     " per half is too few for " + std::to_string(d) + " coefficients (needs " +
+                     std::to_string(d + 3) + "); pass --shrink or select fewer coefficients");
+  const Eigen::MatrixXd X1 = m.fiducial.topRows(h), X2 = m.fiducial.bottomRows(n - h);
   Eigen::MatrixXd total = Eigen::MatrixXd::Zero(np, np);
-  for (int swap = 0; swap < 2; ++swap) {
-    const Eigen::MatrixXd& Dc = swap ? DB : DA;  // compresses
-    const Eigen::MatrixXd& Dm = swap ? DA : DB;  // measures the compressed derivative
-    const Eigen::MatrixXd W = m.precision * Dc;  // t = Wᵀ x
-    const Eigen::MatrixXd T = m.fiducial * W;    // compressed fiducial realisations
-    const auto tc = mean_cov(T);
-    const std::size_t n = static_cast<std::size_t>(T.rows());
-    const Eigen::MatrixXd dt = W.transpose() * Dm;  // ∂t/∂θ
-    total += fisher_matrix(dt, hartlap_factor(n, static_cast<std::size_t>(np)) *
-                                   spd_inverse(tc.cov, "the compressed covariance"));
+  for (int cswap = 0; cswap < 2; ++cswap) {
+    const Eigen::MatrixXd& Xc = cswap ? X2 : X1;  // covariance of the compression
+    const Eigen::MatrixXd& Xt = cswap ? X1 : X2;  // covariance of the compressed statistic
+    const Eigen::MatrixXd Pc = spd_inverse(shrink ? ledoit_wolf(Xc).cov : mean_cov(Xc).cov, "the half covariance");
+    for (int dswap = 0; dswap < 2; ++dswap) {
+      const Eigen::MatrixXd& Dc = dswap ? DB : DA;  // compresses
+      const Eigen::MatrixXd& Dm = dswap ? DA : DB;  // measures the compressed derivative
+      const Eigen::MatrixXd W = Pc * Dc;            // t = Wᵀ x (its scale does not matter)
+      const auto tc = mean_cov(Xt * W);
+      const Eigen::MatrixXd dt = W.transpose() * Dm;  // ∂t/∂θ
+      total += fisher_matrix(dt, hartlap_factor(static_cast<std::size_t>(Xt.rows()), static_cast<std::size_t>(np)) *
+                                     spd_inverse(tc.cov, "the compressed covariance"));
+    }
   }
-  return 0.5 * total;
+  return 0.25 * total;
 }
 
 std::string fmt(double v) {
@@ -306,7 +319,7 @@ void run_fisher(const FisherOptions& o) {
       h5::write_ints(cg.get(), "flagged", flagged, {checks.size(), np});
     }
     if (o.combined) {
-      const Eigen::MatrixXd Fc = compressed_fisher(m, st);
+      const Eigen::MatrixXd Fc = compressed_fisher(m, st, o.shrink);
       const Eigen::MatrixXd Fg = geometric_mean(m.fisher, Fc);
       row.comb = marginal_errors(Fg);
       h5::Id cg = h5::create_group(g.get(), "combined");

@@ -332,6 +332,11 @@ PlanReport plan(const Campaign& c, const PlanOptions& options) {
                            "), shrink cone.n_perp / cone.n_los, or run fewer ranks per node");
     }
   }
+  // One check can surface through two modules (a chunk width through slicing and the wedge).
+  std::vector<std::string> unique;
+  for (auto& p : r.problems)
+    if (std::find(unique.begin(), unique.end(), p) == unique.end()) unique.push_back(std::move(p));
+  r.problems = std::move(unique);
   return r;
 }
 

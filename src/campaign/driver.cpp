@@ -1,0 +1,651 @@
+// The task farm and the per-entry pipeline (docs/driver.md).
+#include "campaign/driver.hpp"
+
+#include <unistd.h>
+
+#include <algorithm>
+#include <atomic>
+#include <chrono>
+#include <cmath>
+#include <csignal>
+#include <cstdio>
+#include <ctime>
+#include <exception>
+#include <fstream>
+#include <memory>
+#include <sstream>
+
+#include "campaign/plan.hpp"
+#include "core/errors.hpp"
+#include "core/log.hpp"
+#include "cosmo/cosmology.hpp"
+#include "instrument/instrument.hpp"
+#include "sim/lightcone.hpp"
+#include "stats/stats.hpp"
+
+namespace spinflip::campaign {
+
+namespace fs = std::filesystem;
+
+// ------------------------------------------------------------------ signals
+
+namespace {
+volatile std::sig_atomic_t g_stop_signal = 0;
+
+extern "C" void on_stop_signal(int sig) {
+  // SIGTERM outranks SIGUSR1: the scheduler is about to kill us, abandon at once.
+  if (g_stop_signal == 0 || sig == SIGTERM) g_stop_signal = sig;
+}
+}  // namespace
+
+void install_stop_handlers() {
+  struct sigaction sa {};
+  sa.sa_handler = on_stop_signal;
+  sigemptyset(&sa.sa_mask);
+  sa.sa_flags = SA_RESTART;
+  sigaction(SIGTERM, &sa, nullptr);
+  sigaction(SIGUSR1, &sa, nullptr);
+}
+int stop_signal() { return g_stop_signal; }
+void reset_stop_signal() { g_stop_signal = 0; }
+
+// ------------------------------------------------------ assignment policy
+
+std::vector<std::size_t> todo_entries(const std::vector<catalogue::Status>& statuses, bool retry_failed) {
+  std::vector<std::size_t> out;
+  for (std::size_t e = 0; e < statuses.size(); ++e)
+    if (statuses[e] == catalogue::Status::pending || (retry_failed && statuses[e] == catalogue::Status::failed))
+      out.push_back(e);
+  return out;
+}
+
+void check_group_size(int g, int world_size, const std::string& origin) {
+  if (g < 1)
+    throw ConfigError(origin + ": group size " + std::to_string(g) + " is not allowed: at least 1");
+  if (world_size % g != 0)
+    throw ConfigError(origin + ": group size " + std::to_string(g) + " does not divide the " +
+                      std::to_string(world_size) + " MPI ranks: allowed group sizes divide the rank count (e.g. 1" +
+                      (world_size % 2 == 0 ? ", 2" : "") + ", " + std::to_string(world_size) + ")");
+}
+
+std::pair<std::size_t, std::size_t> unit_block(std::size_t n, int r, int g) {
+  const auto R = static_cast<std::size_t>(r), G = static_cast<std::size_t>(g);
+  return {n * R / G, n * (R + 1) / G};
+}
+
+// ------------------------------------------------------------------ setup
+
+namespace {
+
+int rank_of(MPI_Comm c) {
+  int r = 0;
+  SPINFLIP_CHECK_MPI(MPI_Comm_rank(c, &r));
+  return r;
+}
+int size_of(MPI_Comm c) {
+  int s = 1;
+  SPINFLIP_CHECK_MPI(MPI_Comm_size(c, &s));
+  return s;
+}
+
+std::size_t fiducial_point_of(const Campaign& c) {
+  for (std::size_t i = 0; i < c.points().size(); ++i)
+    if (c.points()[i].role == Role::fiducial) return i;
+  return 0;
+}
+
+/// Everything an entry needs that does not depend on the entry: built once.
+struct Setup {
+  core::Config fiducial_config;
+  instrument::ConeGeometry geometry;
+  std::vector<instrument::Scenario> scenarios;
+  std::vector<std::unique_ptr<stats::Kernel>> kernels;
+  std::vector<instrument::Unit> slices, chunks;
+  stats::Geometry slice_geometry, chunk_geometry;
+  catalogue::Layout layout;
+
+  explicit Setup(const Campaign& c) : fiducial_config(c.config_for_point(fiducial_point_of(c))) {
+    const core::Config& cfg = c.config();
+    const cosmo::Cosmology cosmology(cosmo::parameters_from(fiducial_config));
+    const sim::ConeSettings cone = sim::settings_from(fiducial_config);
+    // LOS cell centres exactly as sim::generate_cone places them.
+    geometry.shape = {cone.n_perp, cone.n_perp, cone.n_los};
+    geometry.cell_mpc = cone.cell_mpc;
+    const double d_near = cosmology.comoving_distance_mpc(cone.z_min);
+    for (std::size_t k = 0; k < cone.n_los; ++k) {
+      geometry.distance_mpc.push_back(d_near + (static_cast<double>(k) + 0.5) * cone.cell_mpc);
+      geometry.z.push_back(cosmology.redshift_at_comoving_distance(geometry.distance_mpc.back()));
+      geometry.freq_MHz.push_back(cosmo::frequency_MHz(geometry.z.back()));
+    }
+    scenarios = instrument::scenarios_from(fiducial_config, cosmology, geometry);
+    kernels = stats::kernels_from(cfg);
+    bool need_slices = false, need_chunks = false;
+    for (const auto& k : kernels) (k->unit_kind() == stats::UnitKind::slice ? need_slices : need_chunks) = true;
+    if (need_slices) slices = instrument::slice_units(cfg, geometry);
+    if (need_chunks) chunks = instrument::chunk_units(cfg, geometry);
+    const double dx = cone.cell_mpc;
+    slice_geometry.shape = {cone.n_perp, cone.n_perp};
+    slice_geometry.cell_mpc = {dx, dx, 0.0};
+    chunk_geometry.shape = {cone.n_perp, cone.n_perp, chunks.empty() ? 0 : chunks.front().los_end - chunks.front().los_begin};
+    chunk_geometry.cell_mpc = {dx, dx, dx};
+    for (const auto& k : kernels) {
+      const bool slice = k->unit_kind() == stats::UnitKind::slice;
+      if ((slice ? slices : chunks).empty())
+        throw ConfigError(cfg.location("stats." + k->name()) + ": [stats." + k->name() + "] measures " +
+                          (slice ? "slices" : "chunks") + " but the campaign's band holds none ([" +
+                          (slice ? "slices" : "chunks") + "] settings)");
+      try {
+        k->check(slice ? slice_geometry : chunk_geometry);
+      } catch (const InputError& e) {
+        throw ConfigError(cfg.location("stats." + k->name()) + ": [stats." + k->name() + "]: " + e.what());
+      }
+    }
+    build_layout(c);
+  }
+
+  const std::vector<instrument::Unit>& units_of(const stats::Kernel& k) const {
+    return k.unit_kind() == stats::UnitKind::slice ? slices : chunks;
+  }
+  const stats::Geometry& geometry_of(const stats::Kernel& k) const {
+    return k.unit_kind() == stats::UnitKind::slice ? slice_geometry : chunk_geometry;
+  }
+
+  void build_layout(const Campaign& c) {
+    const core::Config& cfg = c.config();
+    catalogue::Layout& L = layout;
+    L.campaign_sha256 = c.sha256();
+    L.campaign_text = cfg.text();
+    L.campaign_file = cfg.source_name();
+    L.attributes = {{"campaign_name", cfg.string("campaign.name")},
+                    {"campaign_seed", cfg.integer("campaign.seed")},
+                    {"fiducial_point", static_cast<std::int64_t>(fiducial_point_of(c))}};
+    for (const auto& p : c.parameters()) L.parameters.push_back({p.name, p.unit, p.log, p.min, p.max, p.fiducial});
+    for (const auto& d : c.designs()) L.design_names.push_back(d.name);
+    for (const auto& p : c.points())
+      L.points.push_back({p.values, role_name(p.role), p.design_index, p.stencil_param, p.stencil_step_index,
+                          p.stencil_step, static_cast<std::int64_t>(p.seed_point)});
+    for (const auto& e : c.entries()) {
+      const rng::EntryKey key = c.entry_key(e);
+      L.entries.push_back({static_cast<std::int64_t>(e.point), static_cast<std::int64_t>(e.realisation),
+                           {key.campaign_seed, key.point, key.realisation}});
+    }
+    L.history_z = geometry.z;
+    for (const auto& s : scenarios) {
+      catalogue::ScenarioLayout sl;
+      sl.name = s.name();
+      sl.attributes = s.attributes();
+      for (const auto& k : kernels) {
+        catalogue::KernelLayout kl;
+        kl.name = k->name();
+        kl.unit_kind = k->unit_kind() == stats::UnitKind::slice ? "slice" : "chunk";
+        const auto& g = geometry_of(*k);
+        kl.n_coeff = k->n_coeff(g);
+        for (auto& a : k->axes(g)) kl.axes.push_back({a.name, a.values});
+        for (const auto& u : units_of(*k)) kl.unit_freq_MHz.push_back(u.freq_MHz), kl.unit_z.push_back(u.z);
+        kl.attributes = k->attributes();
+        sl.kernels.push_back(std::move(kl));
+      }
+      L.scenarios.push_back(std::move(sl));
+    }
+  }
+};
+
+/// Rank 0 runs `f`; a user error it throws is rethrown on every rank.
+template <class F>
+void on_world_root(MPI_Comm comm, F&& f) {
+  std::string message;
+  int kind = 0;
+  if (rank_of(comm) == 0) {
+    try {
+      f();
+    } catch (const Error& e) {
+      kind = e.exit_status() == 2 ? 2 : 1;
+      message = e.what();
+    } catch (const std::exception& e) {
+      kind = 1, message = e.what();
+    }
+  }
+  long long header[2] = {kind, static_cast<long long>(message.size())};
+  SPINFLIP_CHECK_MPI(MPI_Bcast(header, 2, MPI_LONG_LONG, 0, comm));
+  if (header[0] == 0) return;
+  message.resize(static_cast<std::size_t>(header[1]));
+  SPINFLIP_CHECK_MPI(MPI_Bcast(message.data(), static_cast<int>(header[1]), MPI_CHAR, 0, comm));
+  if (header[0] == 2) throw ConfigError(message);
+  throw InternalError(message);
+}
+
+/// The shared counters on world rank 0: the next todo index, entries done and
+/// failed by this run, and a stop flag any group may raise.
+class Counter {
+ public:
+  enum Slot : int { next = 0, done = 1, failed = 2, stop = 3 };
+  explicit Counter(MPI_Comm world) : unwinding_(std::uncaught_exceptions()) {
+    const bool root = rank_of(world) == 0;
+    SPINFLIP_CHECK_MPI(MPI_Win_allocate(root ? 4 * sizeof(std::int64_t) : 0, sizeof(std::int64_t), MPI_INFO_NULL,
+                                        world, &base_, &win_));
+    if (root) {
+      SPINFLIP_CHECK_MPI(MPI_Win_lock(MPI_LOCK_EXCLUSIVE, 0, 0, win_));
+      std::fill(base_, base_ + 4, std::int64_t{0});
+      SPINFLIP_CHECK_MPI(MPI_Win_unlock(0, win_));
+    }
+    SPINFLIP_CHECK_MPI(MPI_Barrier(world));
+  }
+  Counter(const Counter&) = delete;
+  Counter& operator=(const Counter&) = delete;
+  ~Counter() {
+    // MPI_Win_free is collective: a rank unwinding alone must not wait in it.
+    if (win_ != MPI_WIN_NULL && std::uncaught_exceptions() == unwinding_) MPI_Win_free(&win_);
+  }
+  /// Atomically add `delta` to a slot and return its previous value.
+  std::int64_t add(Slot slot, std::int64_t delta) {
+    std::int64_t old = 0;
+    SPINFLIP_CHECK_MPI(MPI_Win_lock(MPI_LOCK_SHARED, 0, 0, win_));
+    SPINFLIP_CHECK_MPI(MPI_Fetch_and_op(&delta, &old, MPI_INT64_T, 0, slot, MPI_SUM, win_));
+    SPINFLIP_CHECK_MPI(MPI_Win_unlock(0, win_));
+    return old;
+  }
+  std::int64_t read(Slot slot) {
+    std::int64_t value = 0, unused = 0;
+    SPINFLIP_CHECK_MPI(MPI_Win_lock(MPI_LOCK_SHARED, 0, 0, win_));
+    SPINFLIP_CHECK_MPI(MPI_Fetch_and_op(&unused, &value, MPI_INT64_T, 0, slot, MPI_NO_OP, win_));
+    SPINFLIP_CHECK_MPI(MPI_Win_unlock(0, win_));
+    return value;
+  }
+  void free() {
+    if (win_ != MPI_WIN_NULL) SPINFLIP_CHECK_MPI(MPI_Win_free(&win_));
+  }
+
+ private:
+  std::int64_t* base_ = nullptr;
+  MPI_Win win_ = MPI_WIN_NULL;
+  int unwinding_;
+};
+
+/// Owner of a communicator made by MPI_Comm_split.
+struct Comm {
+  MPI_Comm comm = MPI_COMM_NULL;
+  Comm() = default;
+  Comm(const Comm&) = delete;
+  Comm& operator=(const Comm&) = delete;
+  ~Comm() {
+    if (comm != MPI_COMM_NULL) MPI_Comm_free(&comm);
+  }
+};
+
+/// Thrown inside an entry when the group agrees to abandon it (SIGTERM).
+struct Abandon {};
+/// An entry-level failure every rank of the group agrees on.
+struct EntryFailed {
+  std::string message;
+};
+
+std::string utc_now() {
+  std::time_t t = std::time(nullptr);
+  std::tm tm{};
+  gmtime_r(&t, &tm);
+  char buf[32];
+  std::strftime(buf, sizeof buf, "%Y-%m-%dT%H:%M:%SZ", &tm);
+  return buf;
+}
+
+std::string duration_text(double s) {
+  if (!std::isfinite(s) || s < 0) return "unknown";
+  char buf[48];
+  const long t = std::lround(s);
+  if (t >= 3600)
+    std::snprintf(buf, sizeof buf, "%ldh%02ldm", t / 3600, (t % 3600) / 60);
+  else if (t >= 60)
+    std::snprintf(buf, sizeof buf, "%ldm%02lds", t / 60, t % 60);
+  else
+    std::snprintf(buf, sizeof buf, "%lds", t);
+  return buf;
+}
+
+std::string json_string(const std::string& s) {
+  std::string out = "\"";
+  for (char ch : s) {
+    if (ch == '"' || ch == '\\') out += '\\', out += ch;
+    else if (static_cast<unsigned char>(ch) < 0x20) {
+      char buf[8];
+      std::snprintf(buf, sizeof buf, "\\u%04x", ch);
+      out += buf;
+    } else out += ch;
+  }
+  return out + "\"";
+}
+
+/// Rank 0's progress: log lines and `<catalogue>.progress.json` (written to a
+/// temporary file and renamed, so a reader never sees half a file).
+class Progress {
+ public:
+  Progress(fs::path catalogue, std::string campaign, std::size_t total, std::size_t done0, std::size_t failed0,
+           std::size_t todo, int ranks, int groups, double interval_s)
+      : file_(catalogue.string() + ".progress.json"), catalogue_(std::move(catalogue)), campaign_(std::move(campaign)),
+        total_(total), done0_(done0), failed0_(failed0), todo_(todo), ranks_(ranks), groups_(groups),
+        interval_(interval_s), start_(now()), last_(start_) {}
+
+  /// Log and rewrite the file if the interval has passed (or `force`).
+  void tick(Counter& counter, bool force = false, const std::string& state = "running") {
+    const double t = now();
+    if (!force && t - last_ < interval_) return;
+    last_ = t;
+    const auto done_run = static_cast<std::size_t>(counter.read(Counter::done));
+    const auto failed_run = static_cast<std::size_t>(counter.read(Counter::failed));
+    const std::size_t ran = done_run + failed_run;
+    const std::size_t done = done0_ + done_run, failed = failed0_ + failed_run;
+    const std::size_t pending = total_ - std::min(total_, done + failed);
+    const double elapsed = t - start_;
+    const double per_min = elapsed > 0 ? 60.0 * static_cast<double>(ran) / elapsed : 0.0;
+    const double left = ran > 0 ? elapsed / static_cast<double>(ran) * static_cast<double>(todo_ - std::min(todo_, ran))
+                                : std::nan("");
+    if (state == "running")
+      log::info("progress: {}/{} entries done, {} failed, {} pending; {:.2f} entries/min; time left {}", done, total_,
+                failed, pending, per_min, duration_text(left));
+    std::ostringstream js;
+    js.precision(6);
+    js << "{\n  \"campaign\": " << json_string(campaign_) << ",\n  \"catalogue\": " << json_string(catalogue_.string())
+       << ",\n  \"state\": " << json_string(state) << ",\n  \"updated_utc\": " << json_string(utc_now())
+       << ",\n  \"total\": " << total_ << ",\n  \"done\": " << done << ",\n  \"failed\": " << failed
+       << ",\n  \"pending\": " << pending << ",\n  \"ran_this_run\": " << ran << ",\n  \"to_run_this_run\": " << todo_
+       << ",\n  \"elapsed_s\": " << elapsed << ",\n  \"entries_per_minute\": " << per_min
+       << ",\n  \"time_left_s\": " << (std::isfinite(left) ? std::to_string(left) : std::string("null"))
+       << ",\n  \"ranks\": " << ranks_ << ",\n  \"groups\": " << groups_ << "\n}\n";
+    const fs::path tmp = file_.string() + ".tmp";
+    {
+      std::ofstream out(tmp);
+      out << js.str();
+      if (!out) {
+        log::warn("cannot write the progress file {}", tmp.string());
+        return;
+      }
+    }
+    std::error_code ec;
+    fs::rename(tmp, file_, ec);
+    if (ec) log::warn("cannot rename {} to {}: {}", tmp.string(), file_.string(), ec.message());
+  }
+
+ private:
+  static double now() { return MPI_Wtime(); }
+  fs::path file_, catalogue_;
+  std::string campaign_;
+  std::size_t total_, done0_, failed0_, todo_;
+  int ranks_, groups_;
+  double interval_, start_, last_;
+};
+
+/// One group's state while it runs entries.
+class Worker {
+ public:
+  Worker(const Campaign& c, const Setup& setup, catalogue::Catalogue& cat, MPI_Comm group, int world_rank,
+         Progress* progress, Counter& counter)
+      : c_(c), setup_(setup), cat_(cat), group_(group), grank_(rank_of(group)), gsize_(size_of(group)),
+        world_rank_(world_rank), progress_(progress), counter_(counter) {}
+
+  /// Run one entry; true if it finished (done or failed), false if abandoned.
+  bool run_entry(std::size_t index) {
+    const double t0 = MPI_Wtime();
+    const Entry& entry = c_.entries().at(index);
+    catalogue::EntryResult result;
+    std::string failure;
+    try {
+      compute(entry, result);
+    } catch (const Abandon&) {
+      return false;
+    } catch (const EntryFailed& f) {
+      failure = f.message;
+    }
+    const double seconds = MPI_Wtime() - t0;
+    if (grank_ == 0) {
+      if (failure.empty()) {
+        result.wall_time_s = seconds;
+        result.rank = world_rank_;
+        cat_.write_entry(index, result);
+        counter_.add(Counter::done, 1);
+        log::debug("entry {} (point {}, realisation {}) done in {:.2f} s", index, entry.point, entry.realisation,
+                   seconds);
+      } else {
+        cat_.write_failure(index, failure, seconds, world_rank_);
+        counter_.add(Counter::failed, 1);
+        log::warn("entry {} (point {}, realisation {}) failed: {}", index, entry.point, entry.realisation, failure);
+      }
+    }
+    tick();
+    return true;
+  }
+
+ private:
+  void tick() {
+    if (progress_) progress_->tick(counter_);
+  }
+
+  /// Between stages: abandon the entry if any rank of the group got SIGTERM.
+  void checkpoint() {
+    tick();
+    int mine = stop_signal() == SIGTERM ? 1 : 0, any = 0;
+    SPINFLIP_CHECK_MPI(MPI_Allreduce(&mine, &any, 1, MPI_INT, MPI_MAX, group_));
+    if (any) throw Abandon{};
+  }
+
+  /// Run `f` on every rank; if it throws a user-level error on any rank, the
+  /// whole group fails the entry with the lowest failing rank's message.
+  template <class F>
+  void agreed(F&& f) {
+    std::string message;
+    try {
+      f();
+    } catch (const Error& e) {
+      message = e.what();
+      if (message.empty()) message = "error";
+    } catch (const std::exception& e) {
+      message = std::string("internal error: ") + e.what();
+    }
+    int mine = message.empty() ? gsize_ : grank_, first = 0;
+    SPINFLIP_CHECK_MPI(MPI_Allreduce(&mine, &first, 1, MPI_INT, MPI_MIN, group_));
+    if (first == gsize_) return;
+    long long n = static_cast<long long>(message.size());
+    SPINFLIP_CHECK_MPI(MPI_Bcast(&n, 1, MPI_LONG_LONG, first, group_));
+    message.resize(static_cast<std::size_t>(n));
+    SPINFLIP_CHECK_MPI(MPI_Bcast(message.data(), static_cast<int>(n), MPI_CHAR, first, group_));
+    throw EntryFailed{message};
+  }
+
+  void compute(const Entry& entry, catalogue::EntryResult& result) {
+    const rng::EntryKey key = c_.entry_key(entry);
+    // Settings and cosmology are checked identically on every rank before any
+    // collective call, so a bad parameter fails the entry on all of them alike.
+    std::optional<sim::ConeSettings> settings;
+    std::optional<cosmo::Cosmology> cosmology;
+    agreed([&] {
+      const core::Config cfg = c_.config_for_point(entry.point);
+      settings = sim::settings_from(cfg);
+      cosmology.emplace(cosmo::parameters_from(cfg));
+      sim::check_settings(*settings, *cosmology);
+    });
+    sim::LightCone cone;
+    agreed([&] { cone = sim::generate_cone(*settings, *cosmology, key, group_); });
+    checkpoint();
+    core::Array3<float> clean = sim::allgather_cone(cone, group_);
+    agreed([&] { stats::check_finite(clean.data.data(), clean.size(), "light cone δT_b"); });
+    result.x_hi = cone.x_hi_mean;
+    result.mean_tb_mK = cone.tb_mean_mK;
+    cone = sim::LightCone{};  // the slab is no longer needed
+
+    result.values.resize(setup_.scenarios.size());
+    for (std::size_t s = 0; s < setup_.scenarios.size(); ++s) {
+      core::Array3<float> observed = clean;
+      agreed([&] { setup_.scenarios[s].apply(observed, setup_.geometry, key); });
+      checkpoint();
+      for (const auto& kernel : setup_.kernels) result.values[s].push_back(measure(*kernel, observed));
+      checkpoint();
+    }
+  }
+
+  /// This rank's block of units, gathered in unit order on the group leader.
+  std::vector<double> measure(const stats::Kernel& k, const core::Array3<float>& observed) {
+    const auto& units = setup_.units_of(k);
+    const auto& g = setup_.geometry_of(k);
+    const std::size_t nc = k.n_coeff(g), nu = units.size();
+    const auto [begin, end] = unit_block(nu, grank_, gsize_);
+    std::vector<double> mine((end - begin) * nc);
+    agreed([&] {
+      for (std::size_t u = begin; u < end; ++u) {
+        std::vector<double> v;
+        if (k.unit_kind() == stats::UnitKind::slice) {
+          const auto slice = instrument::extract_slice(observed, units[u]);
+          v = k.measure(slice.data.data(), g);
+        } else {
+          const auto chunk = instrument::extract_chunk(observed, units[u]);
+          v = k.measure(chunk.data.data(), g);
+        }
+        if (v.size() != nc)
+          throw InternalError("kernel " + k.name() + " returned " + std::to_string(v.size()) + " values, expected " +
+                              std::to_string(nc));
+        std::copy(v.begin(), v.end(), mine.begin() + static_cast<std::ptrdiff_t>((u - begin) * nc));
+      }
+    });
+    if (gsize_ == 1) return mine;
+    std::vector<int> counts(static_cast<std::size_t>(gsize_)), displs(static_cast<std::size_t>(gsize_));
+    for (int r = 0; r < gsize_; ++r) {
+      const auto [b, e] = unit_block(nu, r, gsize_);
+      counts[static_cast<std::size_t>(r)] = static_cast<int>((e - b) * nc);
+      displs[static_cast<std::size_t>(r)] = static_cast<int>(b * nc);
+    }
+    std::vector<double> all(grank_ == 0 ? nu * nc : 0);
+    SPINFLIP_CHECK_MPI(MPI_Gatherv(mine.data(), static_cast<int>(mine.size()), MPI_DOUBLE, all.data(), counts.data(),
+                                   displs.data(), MPI_DOUBLE, 0, group_));
+    return all;
+  }
+
+  const Campaign& c_;
+  const Setup& setup_;
+  catalogue::Catalogue& cat_;
+  MPI_Comm group_;
+  int grank_, gsize_, world_rank_;
+  Progress* progress_;
+  Counter& counter_;
+};
+
+int ranks_per_node(MPI_Comm world) {
+  MPI_Comm node = MPI_COMM_NULL;
+  SPINFLIP_CHECK_MPI(MPI_Comm_split_type(world, MPI_COMM_TYPE_SHARED, 0, MPI_INFO_NULL, &node));
+  int n = size_of(node);
+  MPI_Comm_free(&node);
+  return n;
+}
+
+}  // namespace
+
+catalogue::Layout layout_of(const Campaign& campaign) { return Setup(campaign).layout; }
+
+RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
+  const int wrank = rank_of(world), wsize = size_of(world);
+  const core::Config& cfg = c.config();
+  const int g = options.group_size ? *options.group_size : static_cast<int>(cfg.integer("campaign.group_size"));
+  check_group_size(g, wsize, options.group_size ? std::string("--group-size") : cfg.location("campaign.group_size") +
+                                                                                   ": campaign.group_size");
+  const fs::path output = options.output.empty() ? c.output_path() : options.output;
+
+  // Everything `spinflip plan` refuses, run refuses too (memory, geometry, kernels).
+  const int per_node = ranks_per_node(world);
+  on_world_root(world, [&] {
+    PlanOptions po;
+    po.memory_limit_gb = options.memory_limit_gb;
+    po.ranks_per_node = per_node;
+    PlanReport report = plan(c, po);
+    if (!report.problems.empty())
+      throw ConfigError(report.problems.front() +
+                        (report.problems.size() > 1
+                             ? " (and " + std::to_string(report.problems.size() - 1) + " more: see spinflip plan)"
+                             : std::string()));
+  });
+
+  const Setup setup(c);
+  int exists = 0;
+  if (wrank == 0) exists = fs::exists(output) ? 1 : 0;
+  SPINFLIP_CHECK_MPI(MPI_Bcast(&exists, 1, MPI_INT, 0, world));
+  catalogue::Catalogue cat = exists ? catalogue::Catalogue::open(output, setup.layout, world)
+                                    : catalogue::Catalogue::create(output, setup.layout, world);
+  const auto statuses = cat.statuses();
+  std::vector<std::size_t> todo = todo_entries(statuses, options.retry_failed);
+  std::size_t done0 = 0, failed0 = 0;
+  for (auto s : statuses) {
+    if (s == catalogue::Status::done) ++done0;
+    if (s == catalogue::Status::failed && !options.retry_failed) ++failed0;
+  }
+  std::size_t limit = todo.size();
+  if (options.max_entries > 0) limit = std::min(limit, options.max_entries);
+
+  Comm group;
+  SPINFLIP_CHECK_MPI(MPI_Comm_split(world, wrank / g, wrank, &group.comm));
+  const int grank = rank_of(group.comm);
+  const int n_groups = wsize / g;
+  if (wrank == 0)
+    log::info("run: campaign '{}', {} entries ({} done, {} failed, {} to run) into {} ({}); {} ranks in {} groups of {}",
+              cfg.string("campaign.name"), statuses.size(), done0, statuses.size() - done0 - todo.size(),
+              todo.size(), output.string(), exists ? "resumed" : "created", wsize, n_groups, g);
+
+  install_stop_handlers();
+  Counter counter(world);
+  std::unique_ptr<Progress> progress;
+  if (wrank == 0)
+    progress = std::make_unique<Progress>(output, cfg.string("campaign.name"), statuses.size(), done0, failed0,
+                                          limit, wsize, n_groups, cfg.real("campaign.progress_interval_s"));
+  if (progress) progress->tick(counter, true);
+  Worker worker(c, setup, cat, group.comm, wrank, progress.get(), counter);
+
+  bool abandoned = false;
+  while (true) {
+    int mine = stop_signal() != 0 ? 1 : 0, any = 0;
+    SPINFLIP_CHECK_MPI(MPI_Allreduce(&mine, &any, 1, MPI_INT, MPI_MAX, group.comm));
+    long long index = -1;
+    if (grank == 0) {
+      if (any) counter.add(Counter::stop, 1);  // every group stops at its next entry
+      if (counter.read(Counter::stop) == 0) {
+        const std::int64_t i = counter.add(Counter::next, 1);
+        if (i < static_cast<std::int64_t>(limit)) index = i;
+      }
+    }
+    SPINFLIP_CHECK_MPI(MPI_Bcast(&index, 1, MPI_LONG_LONG, 0, group.comm));
+    if (index < 0) break;
+    if (!worker.run_entry(todo[static_cast<std::size_t>(index)])) {
+      abandoned = true;
+      break;
+    }
+  }
+
+  // Every group has left the farm; counters are final once all ranks are here.
+  SPINFLIP_CHECK_MPI(MPI_Barrier(world));
+  int sig = stop_signal(), any_sig = 0;
+  SPINFLIP_CHECK_MPI(MPI_Allreduce(&sig, &any_sig, 1, MPI_INT, MPI_MAX, world));
+  int any_abandoned = 0, mine_abandoned = abandoned ? 1 : 0;
+  SPINFLIP_CHECK_MPI(MPI_Allreduce(&mine_abandoned, &any_abandoned, 1, MPI_INT, MPI_MAX, world));
+  long long counts[2] = {0, 0};
+  if (wrank == 0) counts[0] = counter.read(Counter::done), counts[1] = counter.read(Counter::failed);
+  SPINFLIP_CHECK_MPI(MPI_Bcast(counts, 2, MPI_LONG_LONG, 0, world));
+  cat.close();
+
+  RunResult r;
+  r.total = statuses.size();
+  r.ran = static_cast<std::size_t>(counts[0] + counts[1]);
+  r.done = done0 + static_cast<std::size_t>(counts[0]);
+  r.failed = failed0 + static_cast<std::size_t>(counts[1]);
+  r.pending = r.total - std::min(r.total, r.done + r.failed);
+  r.signal = any_sig;
+  r.stopped_early = r.ran < todo.size();
+  if (progress) progress->tick(counter, true, r.stopped_early ? "stopped" : "finished");
+  counter.free();
+  if (wrank == 0) {
+    if (r.stopped_early)
+      log::info("stopped early{}{}: {} entries run, {} done, {} failed, {} pending; the catalogue is resumable: run "
+                "the same command again to continue",
+                any_sig ? " on " : " after --max-entries", any_sig == SIGTERM ? "SIGTERM" : any_sig ? "SIGUSR1" : "",
+                r.ran, r.done, r.failed, r.pending);
+    else
+      log::info("finished: {} entries run, {} done, {} failed, {} pending of {}", r.ran, r.done, r.failed, r.pending,
+                r.total);
+    if (r.failed) log::warn("{} entries failed: spinflip status {} lists them", r.failed, output.string());
+  }
+  return r;
+}
+
+}  // namespace spinflip::campaign

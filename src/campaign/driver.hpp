@@ -1,0 +1,64 @@
+// `spinflip run`: the MPI task farm over a campaign's entries (DESIGN.md §2,
+// §3, §9; docs/driver.md). The world is split into groups of g ranks; each
+// group's leader takes the next entry from a one-sided atomic counter on world
+// rank 0 (no idle master), the group generates the cone together, applies
+// every scenario, divides the units among its ranks for the kernels, and the
+// leader writes the rows. Three things are kept apart: the work list
+// (todo_entries), who does which (pure functions below) and where results go
+// (catalogue::Catalogue).
+#pragma once
+#include <mpi.h>
+
+#include <cstddef>
+#include <filesystem>
+#include <optional>
+#include <string>
+#include <utility>
+#include <vector>
+
+#include "campaign/campaign.hpp"
+#include "catalogue/catalogue.hpp"
+
+namespace spinflip::campaign {
+
+struct RunOptions {
+  std::filesystem::path output;    // empty: the campaign's campaign.output
+  std::optional<int> group_size;   // overrides campaign.group_size
+  bool retry_failed = false;       // also run entries marked failed
+  double memory_limit_gb = 0;      // > 0: overrides campaign.memory_limit_gb
+  std::size_t max_entries = 0;     // > 0: stop cleanly after this many (tests, probes)
+};
+
+struct RunResult {
+  std::size_t total = 0, done = 0, failed = 0, pending = 0;
+  std::size_t ran = 0;          // entries finished (done or failed) by this run
+  bool stopped_early = false;   // a signal (or max_entries) ended the run before the work list
+  int signal = 0;               // the signal that stopped it, 0 if none
+};
+
+/// Run (or resume) the campaign into its catalogue; collective on `world`.
+/// ConfigError for a bad group size, a different campaign in the catalogue, or
+/// a plan that cannot run (memory, geometry); entries that fail are recorded.
+RunResult run(const Campaign& campaign, const RunOptions& options, MPI_Comm world);
+
+/// The catalogue layout of a campaign: design, entries, history z, and per
+/// scenario and kernel the units and axes (units at the fiducial cosmology).
+catalogue::Layout layout_of(const Campaign& campaign);
+
+// --- assignment policy: pure functions, testable without MPI -------------------
+
+/// Entries still to run, in catalogue order: pending, plus failed on request.
+std::vector<std::size_t> todo_entries(const std::vector<catalogue::Status>& statuses, bool retry_failed);
+/// Group size check: ConfigError unless 1 ≤ g and g divides world_size.
+void check_group_size(int group_size, int world_size, const std::string& origin);
+/// The contiguous block [begin, end) of n units that rank r of a group of g measures.
+std::pair<std::size_t, std::size_t> unit_block(std::size_t n, int r, int g);
+
+/// Install SIGTERM/SIGUSR1 handlers that only set a flag (idempotent).
+void install_stop_handlers();
+/// The signal that asked this process to stop (0: none).
+int stop_signal();
+/// For tests: forget a received signal.
+void reset_stop_signal();
+
+}  // namespace spinflip::campaign

@@ -111,7 +111,7 @@ void write_value_attribute(hid_t object, const std::string& name, const core::Va
       [&](const auto& x) {
         using T = std::decay_t<decltype(x)>;
         if constexpr (std::is_same_v<T, bool>)
-          h5::write_attribute(object, name, std::int64_t{x ? 1 : 0});
+          h5::write_attribute(object, name, std::int64_t{x ? 1 : 0});  // h5py: 0 or 1
         else
           h5::write_attribute(object, name, x);
       },
@@ -159,7 +159,7 @@ class Creator {
   void make(hid_t parent, const std::string& name, hid_t type, const std::vector<hsize_t>& d,
             const std::vector<T>& data) {
     Handle ds = dataset(parent, name, type, d);
-    write_all(ds, type, data.data());
+    if (!data.empty()) write_all(ds, type, data.data());
   }
   void make_strings(hid_t parent, const std::string& name, const std::vector<std::string>& values,
                     std::size_t bytes) {
@@ -170,7 +170,7 @@ class Creator {
       std::memcpy(buf.data() + i * bytes, s.data(), s.size());
     }
     Handle ds = dataset(parent, name, t, {values.size()});
-    write_all(ds, t, buf.data());
+    if (!buf.empty()) write_all(ds, t, buf.data());
   }
 
  private:

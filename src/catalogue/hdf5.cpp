@@ -65,6 +65,7 @@ void write_plain(hid_t object, const std::string& name, hid_t type, const std::v
                  const void* data) {
   Handle space = simple_space(d);
   Handle a = attribute(SPINFLIP_H5_ID(H5Acreate2(object, name.c_str(), type, space, H5P_DEFAULT, H5P_DEFAULT)));
+  if (!d.empty() && d[0] == 0) return;  // an empty array: nothing to write
   SPINFLIP_H5(H5Awrite(a, type, data));
 }
 }  // namespace

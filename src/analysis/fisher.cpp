@@ -2,6 +2,7 @@
 // F = ∂μᵀ C⁻¹ ∂μ with the Hartlap factor, convergence checks, comparison table.
 #include <algorithm>
 #include <cmath>
+#include <limits>
 #include <cstdio>
 #include <map>
 #include <set>
@@ -153,6 +154,15 @@ struct Check {
   Eigen::VectorXd sigma;
 };
 
+/// σ of a convergence variant, or NaN when that variant's Fisher matrix is singular.
+Eigen::VectorXd variant_sigma(const Eigen::MatrixXd& D, const Eigen::MatrixXd& P) {
+  try {
+    return marginal_errors(fisher_matrix(D, P));
+  } catch (const InputError&) {
+    return Eigen::VectorXd::Constant(D.cols(), std::numeric_limits<double>::quiet_NaN());
+  }
+}
+
 Eigen::MatrixXd half_mean(const Eigen::MatrixXd& diff) {
   const Eigen::Index h = std::max<Eigen::Index>(diff.rows() / 2, 1);
   return diff.topRows(h).colwise().mean().transpose();
@@ -244,22 +254,34 @@ void run_fisher(const FisherOptions& o) {
   std::vector<std::string> names;
   for (auto& sel : sels) {
     auto m = detail::fisher_model(cat, sel, st, o.transform, o.shrink);
-    Row row{m.selection.name, marginal_errors(m.fisher), conditional_errors(m.fisher), {},
+    if (static_cast<std::size_t>(m.fiducial.cols()) < np)
+      throw InputError("selection '" + m.selection.name + "' has " + std::to_string(m.fiducial.cols()) +
+                       " coefficients for " + std::to_string(np) +
+                       " parameters: a Fisher matrix needs at least as many coefficients as parameters");
+    const std::string fname = "the Fisher matrix of selection '" + m.selection.name + "' (" +
+                              std::to_string(m.fiducial.cols()) + " coefficients, " + std::to_string(np) +
+                              " parameters)";
+    const Eigen::MatrixXd Finv = spd_inverse(m.fisher, fname);
+    Row row{m.selection.name, Finv.diagonal().array().sqrt(), conditional_errors(m.fisher), {},
             static_cast<std::size_t>(m.fiducial.cols()), m.hartlap, {}};
     // Convergence: the same forecast from half the covariance realisations,
     // half the derivative realisations, and each other step size.
     std::vector<Check> checks;
     const std::size_t n = static_cast<std::size_t>(m.fiducial.rows()), d = row.n_data;
     const std::size_t h = n / 2;
-    if (o.shrink || h >= d + 3) {
+    if (o.shrink ? h >= 3 : h >= d + 3) {  // Ledoit-Wolf on 2 rows does not shrink at all
       const Eigen::MatrixXd Xh = m.fiducial.topRows(static_cast<Eigen::Index>(h));
       const Eigen::MatrixXd C = o.shrink ? ledoit_wolf(Xh).cov : mean_cov(Xh).cov;
-      const Eigen::MatrixXd P = (o.shrink ? 1.0 : hartlap_factor(h, d)) * spd_inverse(C, "the half covariance");
-      checks.push_back({"half covariance realisations (" + std::to_string(h) + ")",
-                        marginal_errors(fisher_matrix(m.derivatives, P))});
+      const std::string label = "half covariance realisations (" + std::to_string(h) + ")";
+      try {
+        const Eigen::MatrixXd P = (o.shrink ? 1.0 : hartlap_factor(h, d)) * spd_inverse(C, "the half covariance");
+        checks.push_back({label, variant_sigma(m.derivatives, P)});
+      } catch (const InputError&) {
+        checks.push_back({label, Eigen::VectorXd::Constant(static_cast<Eigen::Index>(np), NAN)});
+      }
     } else {
-      row.flags.push_back("half-covariance check skipped: " + std::to_string(h) + " realisations < p+3 = " +
-                          std::to_string(d + 3));
+      row.flags.push_back("half-covariance check skipped: " + std::to_string(h) + " realisations are too few (need " +
+                          std::to_string(o.shrink ? 3 : d + 3) + ")");
     }
     {
       Eigen::MatrixXd Dh = m.derivatives;
@@ -267,7 +289,7 @@ void run_fisher(const FisherOptions& o) {
         const auto* p = st.find(st.params[j], st.step_index);
         Dh.col(static_cast<Eigen::Index>(j)) = half_mean(m.diff[static_cast<std::size_t>(p - st.pairs.data())]);
       }
-      checks.push_back({"half derivative realisations", marginal_errors(fisher_matrix(Dh, m.precision))});
+      checks.push_back({"half derivative realisations", variant_sigma(Dh, m.precision)});
     }
     for (auto s : st.step_indices()) {
       if (s == st.step_index) continue;
@@ -278,11 +300,11 @@ void run_fisher(const FisherOptions& o) {
           Ds.col(static_cast<Eigen::Index>(j)) = m.diff[static_cast<std::size_t>(p - st.pairs.data())].colwise().mean().transpose();
           any = true;
         }
-      if (any) checks.push_back({"step index " + std::to_string(s), marginal_errors(fisher_matrix(Ds, m.precision))});
+      if (any) checks.push_back({"step index " + std::to_string(s), variant_sigma(Ds, m.precision)});
     }
     h5::Id g = h5::create_group(out.get(), m.selection.name);
     h5::write_doubles(g.get(), "fisher", flat(m.fisher), {np, np});
-    h5::write_doubles(g.get(), "fisher_inverse", flat(Eigen::MatrixXd(spd_inverse(m.fisher, "the Fisher matrix"))), {np, np});
+    h5::write_doubles(g.get(), "fisher_inverse", flat(Finv), {np, np});
     h5::write_doubles(g.get(), "sigma_marginal", flat(row.marg), {np});
     h5::write_doubles(g.get(), "sigma_conditional", flat(row.cond), {np});
     h5::write_doubles(g.get(), "derivatives", flat(m.derivatives), {d, np});
@@ -340,7 +362,9 @@ void run_fisher(const FisherOptions& o) {
   std::printf("Fisher forecast: fiducial point %lld, %zu realisations, step index %lld\n",
               static_cast<long long>(st.fiducial), st.fiducial_entries.size(), static_cast<long long>(st.step_index));
   std::printf("1-sigma marginalised (conditional)%s\n", o.combined ? " [combined estimator]" : "");
-  const int w0 = 22, w = 28;
+  int w0 = 20;
+  for (const auto& pn : pnames) w0 = std::max(w0, static_cast<int>(pn.size()));
+  const int w = 28;
   std::printf("%-*s %-12s", w0, "parameter", "fiducial");
   for (const auto& r : rows) std::printf(" | %-*s", w, r.name.substr(0, w).c_str());
   std::printf("\n");

@@ -164,8 +164,12 @@ std::vector<std::string> read_strings(hid_t loc, const std::string& path, const 
   std::vector<std::string> out;
   out.reserve(n);
   if (n == 0) return out;
+  // Memory types take the file's character set: HDF5 will not convert
+  // between ASCII and UTF-8 strings.
+  const H5T_cset_t cset = H5Tget_cset(type.get());
   if (H5Tis_variable_str(type.get()) > 0) {
     Id mem = string_type();
+    H5Tset_cset(mem.get(), cset);
     std::vector<char*> raw(n, nullptr);
     check(H5Dread(ds.get(), mem.get(), H5S_ALL, H5S_ALL, H5P_DEFAULT, raw.data()), file + ": reading '" + path + "'");
     for (char* s : raw) out.emplace_back(s ? s : "");
@@ -176,6 +180,7 @@ std::vector<std::string> read_strings(hid_t loc, const std::string& path, const 
     Id mem(H5Tcopy(H5T_C_S1));
     H5Tset_size(mem.get(), width);
     H5Tset_strpad(mem.get(), H5T_STR_NULLPAD);
+    H5Tset_cset(mem.get(), cset);
     std::vector<char> raw(n * width);
     check(H5Dread(ds.get(), mem.get(), H5S_ALL, H5S_ALL, H5P_DEFAULT, raw.data()), file + ": reading '" + path + "'");
     for (hsize_t i = 0; i < n; ++i) {
@@ -212,6 +217,7 @@ std::string attr_text(hid_t loc, const std::string& name) {
     case H5T_STRING: {
       if (H5Tis_variable_str(type.get()) > 0) {
         Id mem = string_type();
+        H5Tset_cset(mem.get(), H5Tget_cset(type.get()));
         std::vector<char*> raw(static_cast<std::size_t>(n), nullptr);
         if (H5Aread(a.get(), mem.get(), raw.data()) < 0) return {};
         for (hssize_t i = 0; i < n; ++i) os << (i ? "," : "") << (raw[i] ? raw[i] : "");

@@ -91,7 +91,8 @@ class BispectrumKernel final : public Kernel {
     auto t = table(g);
     const Dims d = dims_of(g);
     fft::Buffer<cf> f(d.n_half());
-    forward(d, data, f.data());
+    fft::Buffer<float> copy;
+    forward(d, aligned(data, d.n_real(), copy), f.data());
     double dv = 1.0;
     for (std::size_t a = 0; a < g.shape.size(); ++a) dv *= g.cell(a);
     const double n = static_cast<double>(d.n_real()), volume = n * dv;

@@ -1,6 +1,8 @@
 // Internal to src/stats: kernel factories and shared helpers.
 #pragma once
+#include <algorithm>
 #include <cmath>
+#include <cstdint>
 #include <complex>
 #include <memory>
 #include <mutex>
@@ -8,6 +10,7 @@
 #include <vector>
 
 #include "core/errors.hpp"
+#include "fft/fft.hpp"
 #include "stats/stats.hpp"
 
 namespace spinflip::stats::detail {
@@ -31,6 +34,15 @@ inline double wavenumber(std::size_t i, std::size_t n, double cell) {
 /// planes other than 0 and the Nyquist plane stand for themselves and their mirror.
 inline double half_plane_weight(std::size_t k, std::size_t n) {
   return (k == 0 || (n % 2 == 0 && k == n / 2)) ? 1.0 : 2.0;
+}
+
+/// `data` itself if it is 64-byte aligned, else a copy in `keep`. FFTW picks plans by
+/// alignment, so this keeps results bit-identical wherever the caller's array lives.
+inline const float* aligned(const float* data, std::size_t n, fft::Buffer<float>& keep) {
+  if (reinterpret_cast<std::uintptr_t>(data) % 64 == 0) return data;
+  keep = fft::Buffer<float>(n);
+  std::copy(data, data + n, keep.data());
+  return keep.data();
 }
 
 /// InputError "<kernel>: needs a <2D|3D> unit, got shape (a, b, c)".

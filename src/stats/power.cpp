@@ -29,15 +29,25 @@ Dims dims_of(const Geometry& g) {
   return {g.shape[0], g.shape[1], g.shape[2], g.shape[2] / 2 + 1, g.cell(0), g.cell(1), g.cell(2), false};
 }
 
-/// Forward transform of a unit into the half grid (n0 n1 h2 complex).
-fft::Buffer<fft::cfloat> transform(const float* data, const Geometry& g) {
+/// Forward transform of a unit into the half grid (n0 n1 h2 complex). The result
+/// lives in a per-thread workspace reused by the next call on the same thread:
+/// a chunk's spectrum is ~70 MB and fresh pages cost as much as the binning.
+const fft::cfloat* transform(const float* input, const Geometry& g) {
+  thread_local fft::Buffer<float> copy;
+  thread_local fft::Buffer<fft::cfloat> out;
   const Dims d = dims_of(g);
-  fft::Buffer<fft::cfloat> out(d.n0 * d.n1 * d.h2);
+  const float* data = input;
+  if (reinterpret_cast<std::uintptr_t>(input) % 64 != 0) {  // FFTW plans by alignment: keep results bit-identical
+    if (copy.size() < g.n_cells()) copy = fft::Buffer<float>(g.n_cells());
+    std::copy(input, input + g.n_cells(), copy.data());
+    data = copy.data();
+  }
+  if (out.size() < d.n0 * d.n1 * d.h2) out = fft::Buffer<fft::cfloat>(d.n0 * d.n1 * d.h2);
   if (d.two_d)
     fft::r2c_2d(d.n1, d.n2, data, out.data());
   else
     fft::r2c_3d({d.n0, d.n1, d.n2}, data, out.data());
-  return out;
+  return out.data();
 }
 
 double cell_volume(const Geometry& g) {
@@ -57,6 +67,7 @@ const double nan = std::numeric_limits<double>::quiet_NaN();
 // ---------------------------------------------------------------- spherical
 struct SphericalTable {
   std::vector<std::int32_t> bin;  // per half-grid mode, -1 outside every bin (and k = 0)
+  std::vector<float> kpow;        // |k|^D per half-grid mode (for delta2), 0 outside the bins
   std::vector<double> n_modes, k_mean;
 };
 
@@ -91,21 +102,21 @@ class PowerKernel final : public Kernel {
     auto t = table(g);
     const Dims d = dims_of(g);
     auto f = transform(data, g);
-    const auto k0 = axis_k2(d.n0, d.c0), k1 = axis_k2(d.n1, d.c1), k2 = axis_k2(d.n2, d.c2);
-    std::vector<double> p(bins(), 0.0), dk(bins(), 0.0);
     const bool two_d = d.two_d;
-    std::size_t idx = 0;
-    for (std::size_t i = 0; i < d.n0; ++i)
-      for (std::size_t j = 0; j < d.n1; ++j)
-        for (std::size_t k = 0; k < d.h2; ++k, ++idx) {
-          const std::int32_t b = t->bin[idx];
-          if (b < 0) continue;
-          const double w = half_plane_weight(k, d.n2);
-          const double p2 = std::norm(std::complex<double>(f[idx]));
-          const double kk = k0[i] + k1[j] + k2[k];
-          p[b] += w * p2;
-          dk[b] += w * p2 * (two_d ? kk : kk * std::sqrt(kk));  // |k|² (2D) or |k|³ (3D)
-        }
+    std::vector<double> p(bins(), 0.0), dk(bins(), 0.0);
+    std::vector<double> w(d.h2);
+    for (std::size_t k = 0; k < d.h2; ++k) w[k] = half_plane_weight(k, d.n2);
+    const float* fr = reinterpret_cast<const float*>(f);
+    const std::int32_t* bin = t->bin.data();
+    const float* kp = t->kpow.data();
+    for (std::size_t row = 0, idx = 0; row < d.n0 * d.n1; ++row)
+      for (std::size_t k = 0; k < d.h2; ++k, ++idx) {
+        const std::int32_t b = bin[idx];
+        if (b < 0) continue;
+        const double p2 = w[k] * (double(fr[2 * idx]) * fr[2 * idx] + double(fr[2 * idx + 1]) * fr[2 * idx + 1]);
+        p[b] += p2;
+        dk[b] += p2 * kp[idx];  // |k|² (2D) or |k|³ (3D)
+      }
     // P̂ = ΔV² |F|² / V = ΔV |F|² / N (DESIGN.md §6); delta2 = |k|^D P̂ / (2π) or (2π²).
     const double dv = cell_volume(g), n = static_cast<double>(g.n_cells());
     const double delta_norm = two_d ? 1.0 / (2.0 * M_PI) : 1.0 / (2.0 * M_PI * M_PI);
@@ -137,6 +148,7 @@ class PowerKernel final : public Kernel {
       const Dims d = dims_of(g);
       SphericalTable t;
       t.bin.assign(d.n0 * d.n1 * d.h2, -1);
+      t.kpow.assign(d.n0 * d.n1 * d.h2, 0.0f);
       t.n_modes.assign(bins(), 0.0);
       t.k_mean.assign(bins(), 0.0);
       const auto k0 = axis_k2(d.n0, d.c0), k1 = axis_k2(d.n1, d.c1), k2 = axis_k2(d.n2, d.c2);
@@ -149,6 +161,7 @@ class PowerKernel final : public Kernel {
             const auto b = static_cast<std::size_t>(std::upper_bound(edges_.begin(), edges_.end(), kk) -
                                                     edges_.begin()) - 1;
             t.bin[idx] = static_cast<std::int32_t>(b);
+            t.kpow[idx] = static_cast<float>(d.two_d ? kk * kk : kk * kk * kk);
             const double w = half_plane_weight(k, d.n2);
             t.n_modes[b] += w;
             t.k_mean[b] += w * kk;

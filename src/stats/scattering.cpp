@@ -166,39 +166,53 @@ Bank build_bank(const ScatteringParams& p, std::size_t n1, std::size_t n2) {
   return bank;
 }
 
-/// Half-grid spectrum (r2c) of a real p1 × p2 field, read at any signed index.
-struct HalfSpectrum {
-  std::size_t p1 = 0, p2 = 0, h2 = 0;
+/// Full spectrum of a real p1 × p2 field (r2c, then the mirror half by Hermitian symmetry),
+/// so the per-filter gathers below are plain strided copies.
+struct Spectrum {
+  std::size_t p1 = 0, p2 = 0;
   fft::Buffer<cf> data;
-  cf at(long m1, long m2) const {
-    const long a = wrap(m1, p1), b = wrap(m2, p2);
-    if (static_cast<std::size_t>(b) < h2) return data[static_cast<std::size_t>(a) * h2 + b];
-    return std::conj(data[static_cast<std::size_t>(wrap(-m1, p1)) * h2 + static_cast<std::size_t>(wrap(-m2, p2))]);
-  }
 };
 
-HalfSpectrum forward(const float* real, std::size_t p1, std::size_t p2) {
-  HalfSpectrum s{p1, p2, p2 / 2 + 1, fft::Buffer<cf>(p1 * (p2 / 2 + 1))};
-  fft::r2c_2d(p1, p2, real, s.data.data());
+Spectrum forward(const float* real, std::size_t p1, std::size_t p2) {
+  const std::size_t h2 = p2 / 2 + 1;
+  fft::Buffer<cf> half(p1 * h2);
+  fft::r2c_2d(p1, p2, real, half.data());
+  Spectrum s{p1, p2, fft::Buffer<cf>(p1 * p2)};
+  for (std::size_t a = 0; a < p1; ++a) {
+    const cf* src = half.data() + a * h2;
+    const cf* mirror = half.data() + ((p1 - a) % p1) * h2;
+    cf* dst = s.data.data() + a * p2;
+    for (std::size_t b = 0; b < h2; ++b) dst[b] = src[b];
+    for (std::size_t b = h2; b < p2; ++b) dst[b] = std::conj(mirror[p2 - b]);
+  }
   return s;
 }
 
 /// |x⋆ψ| on a g1 × g2 grid from the spectrum of x, scaled to the fine-grid definition.
-void modulus_conv(const HalfSpectrum& x, const Filter& f, std::size_t g1, std::size_t g2, fft::Buffer<cf>& work,
+void modulus_conv(const Spectrum& x, const Filter& f, std::size_t g1, std::size_t g2, fft::Buffer<cf>& work,
                   float* out) {
   std::fill(work.data(), work.data() + g1 * g2, cf(0.0f, 0.0f));
+  const std::size_t s0 = static_cast<std::size_t>(wrap(f.b2, x.p2));
+  const std::size_t d0 = static_cast<std::size_t>(wrap(f.b2 - f.c2, g2));
   for (std::size_t i = 0; i < f.w1; ++i) {
     const long m1 = f.b1 + static_cast<long>(i);
-    cf* row = work.data() + static_cast<std::size_t>(wrap(m1 - f.c1, g1)) * g2;
+    const cf* src = x.data.data() + static_cast<std::size_t>(wrap(m1, x.p1)) * x.p2;
+    cf* dst = work.data() + static_cast<std::size_t>(wrap(m1 - f.c1, g1)) * g2;
     const float* v = f.value.data() + i * f.w2;
-    for (std::size_t k = 0; k < f.w2; ++k) {
-      const long m2 = f.b2 + static_cast<long>(k);
-      row[wrap(m2 - f.c2, g2)] += x.at(m1, m2) * v[k];
+    // The box row is at most two runs in the source and in the destination (each wraps once).
+    std::size_t k = 0, s = s0, d = d0;
+    while (k < f.w2) {
+      const std::size_t run = std::min({f.w2 - k, x.p2 - s, g2 - d});
+      for (std::size_t t = 0; t < run; ++t) dst[d + t] = src[s + t] * v[k + t];
+      k += run;
+      s = (s + run) % x.p2;
+      d = (d + run) % g2;
     }
   }
   fft::c2c_2d(g1, g2, work.data(), work.data(), fft::Direction::inverse);
   const float scale = 1.0f / static_cast<float>(x.p1 * x.p2);  // unnormalised inverse of an unnormalised forward
-  for (std::size_t i = 0; i < g1 * g2; ++i) out[i] = std::abs(work[i]) * scale;
+  const float* w = reinterpret_cast<const float*>(work.data());
+  for (std::size_t i = 0; i < g1 * g2; ++i) out[i] = std::sqrt(w[2 * i] * w[2 * i] + w[2 * i + 1] * w[2 * i + 1]) * scale;
 }
 
 double mean(const float* v, std::size_t n) {
@@ -253,7 +267,8 @@ class ScatteringKernel final : public Kernel {
     check(g);
     const std::size_t n1 = g.shape[0], n2 = g.shape[1], J = p_.J, L = p_.L;
     auto bank = cache_.get(ShapeKey{n1, n2}, [&] { return build_bank(p_, n1, n2); });
-    const auto x = forward(data, n1, n2);
+    fft::Buffer<float> copy;
+    const auto x = forward(aligned(data, n1 * n2, copy), n1, n2);
     fft::Buffer<cf> work(n1 * n2);
     fft::Buffer<float> u1(n1 * n2), u2(n1 * n2);
 

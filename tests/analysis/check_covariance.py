@@ -54,8 +54,8 @@ with h5py.File(out) as f:
     sc_coeff = f["cad/selection/coeff"][()][f["cad/selection/kernel"][()] == b"scattering"]
     check("constant coefficients" in rec and 0 not in set(sc_coeff), "constant S0 columns dropped and noted in the record")
 
-# Ledoit & Wolf (2004), J. Multivariate Anal. 88, 365: Lemma 3.2/3.3 and Theorem 3.1,
-# evaluated here directly with numpy (sample covariance S with 1/n, m = <S, I>,
+# Ledoit & Wolf (2004), J. Multivariate Anal. 88, 365, section 3 (formulas from
+# memory of the paper; lemma numbers not relied on), evaluated here directly with numpy (sample covariance S with 1/n, m = <S, I>,
 # d² = ‖S − mI‖², b̄² = n⁻² Σ‖x xᵀ − S‖², b² = min(b̄², d²), S* = (b²/d²) m I + (1 − b²/d²) S,
 # with ‖A‖² = tr(AAᵀ)/p).
 out2 = os.path.join(d, "lw.h5")

@@ -56,7 +56,7 @@ std::vector<std::string> check_file(const ManifestRow& row, const Layout& layout
                        " Mpc (allowed: within 0.1%; transverse resampling is not done)");
   try {
     const auto d = to_distance(los_coordinates(row.file, h, layout), layout.los, c);
-    los_map(d, target.distance_mpc, target.cell_mpc, c, where);
+    los_map(d, target.distance_mpc, target.cell_mpc, c, row.file.string());
   } catch (const Error& e) {
     problems.push_back(row.where + ": " + e.what());
   }

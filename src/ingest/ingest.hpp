@@ -11,6 +11,7 @@
 #include <filesystem>
 #include <optional>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "core/config.hpp"
@@ -64,6 +65,17 @@ Layout layout_from(const core::Config& config);
 /// Parse a manifest file (.csv or .toml) against given parameter names.
 Manifest read_manifest(const std::filesystem::path& file, const std::vector<std::string>& param_names,
                        const Layout& layout);
+
+/// The manifest as design points: rows with the same parameter vector form
+/// one point (first-appearance order), each realisation naming its row. For a
+/// campaign's design: point i has `values`, `role`; entries (i, realisation).
+struct ManifestPoint {
+  std::vector<double> values;
+  std::string role;  // of the point's first row
+  std::vector<std::pair<std::size_t, std::size_t>> realisations;  // (realisation, row index), ascending
+};
+/// InputError (one line per problem) if rows of one point disagree on the role.
+std::vector<ManifestPoint> points_of(const Manifest& manifest);
 
 /// The campaign's comoving grid: n_perp² × n_los cells of cell_mpc, LOS cell
 /// centres from the near end at z_min (the generator's grid, sim/lightcone.hpp).

@@ -296,6 +296,25 @@ Manifest manifest_from(const core::Config& cfg) {
   return read_manifest(path, cfg.table_names("parameters"), layout);
 }
 
+std::vector<ManifestPoint> points_of(const Manifest& m) {
+  std::vector<ManifestPoint> points;
+  std::map<std::vector<double>, std::size_t> index;
+  std::vector<std::string> problems;
+  for (std::size_t r = 0; r < m.rows.size(); ++r) {
+    const ManifestRow& row = m.rows[r];
+    auto [it, fresh] = index.emplace(row.values, points.size());
+    if (fresh) points.push_back({row.values, row.role, {}});
+    ManifestPoint& p = points[it->second];
+    if (p.role != row.role)
+      problems.push_back(row.where + ": role " + row.role + " differs from " + p.role +
+                         " given earlier for the same parameters (one role per parameter vector)");
+    p.realisations.emplace_back(row.realisation, r);
+  }
+  throw_if_problems(problems);
+  for (auto& p : points) std::sort(p.realisations.begin(), p.realisations.end());
+  return points;
+}
+
 void throw_if_problems(const std::vector<std::string>& problems) {
   if (problems.empty()) return;
   std::string text;

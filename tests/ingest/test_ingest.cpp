@@ -92,6 +92,25 @@ TEST(IngestManifest, TomlConesTables) {
   EXPECT_EQ(count_with(m.problems, src + ":7: parameter min_virial_temperature_K is missing"), 1u);
 }
 
+TEST(IngestManifest, PointsGroupRowsByParameterVector) {
+  auto d = test::scratch("points");
+  test::write_text(d / "cones.csv",
+                   "file,realisation,ionizing_efficiency,min_virial_temperature_K,role\n"
+                   "a.npy,2,30,1e4,fiducial\n"
+                   "b.npy,0,40,1e4,training\n"
+                   "c.npy,0,30,1e4,fiducial\n");
+  auto m = read_manifest(d / "cones.csv", kParams, Layout{});
+  const auto p = points_of(m);
+  ASSERT_EQ(p.size(), 2u);
+  EXPECT_EQ(p[0].values, (std::vector<double>{30.0, 1e4}));
+  EXPECT_EQ(p[0].role, "fiducial");
+  using R = std::vector<std::pair<std::size_t, std::size_t>>;
+  EXPECT_EQ(p[0].realisations, (R{{0, 2}, {2, 0}}));  // (realisation, row), ascending
+  EXPECT_EQ(p[1].realisations, (R{{0, 1}}));
+  m.rows[2].role = "training";
+  EXPECT_THROW(points_of(m), InputError);
+}
+
 core::Config campaign(const std::filesystem::path& dir, const std::string& ingest_table) {
   static const core::Schema schema = [] {
     core::Schema s;

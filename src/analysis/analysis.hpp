@@ -96,6 +96,7 @@ struct FisherOptions : CommonOptions {
   double tolerance = 0.1;  // convergence flag: |σ_alt/σ − 1| beyond this
   bool combined = false;   // Coulton & Wandelt (2023) combined estimator
   bool shrink = false;
+  std::string covariance_file;  // C from a covariance output (or a known C) instead of the fiducial sample
 };
 struct ExportOptions : CommonOptions {
   std::string output;

@@ -7,6 +7,7 @@
 #include <map>
 #include <set>
 #include <sstream>
+#include <tuple>
 
 #include "analysis/estimators.hpp"
 #include "analysis/internal.hpp"
@@ -104,8 +105,48 @@ Stencil stencil(const Catalogue& cat, std::optional<std::int64_t> point, std::op
   return st;
 }
 
+namespace {
+/// C (and the factor for its inverse) from a covariance file, checked against the selection.
+std::pair<Eigen::MatrixXd, double> external_covariance(const Catalogue& cat, const Selection& sel,
+                                                       const std::string& transform, const std::string& path) {
+  h5::Id f = h5::open_read(path);
+  const bool grouped = h5::exists(f.get(), sel.name + "/cov");
+  if (!grouped && !h5::exists(f.get(), "cov"))
+    throw InputError("--covariance " + path + ": no dataset '" + sel.name + "/cov' or '/cov' for selection '" +
+                     sel.name + "'");
+  h5::Id g(grouped ? H5Gopen2(f.get(), sel.name.c_str(), H5P_DEFAULT) : H5Gopen2(f.get(), "/", H5P_DEFAULT));
+  const auto v = h5::read_doubles(g.get(), "cov", path);
+  const std::size_t d = sel.elements.size();
+  if (v.size() != d * d)
+    throw InputError("--covariance " + path + ": cov has " + std::to_string(v.size()) + " values, selection '" +
+                     sel.name + "' needs " + std::to_string(d) + " x " + std::to_string(d));
+  if (h5::exists(g.get(), "selection/unit")) {
+    const auto unit = h5::read_ints(g.get(), "selection/unit", path);
+    const auto coeff = h5::read_ints(g.get(), "selection/coeff", path);
+    const auto scen = h5::read_strings(g.get(), "selection/scenario", path);
+    const auto kern = h5::read_strings(g.get(), "selection/kernel", path);
+    for (std::size_t k = 0; k < d; ++k) {
+      const auto& el = sel.elements[k];
+      const auto& b = cat.blocks()[el.block];
+      if (unit[k] != static_cast<std::int64_t>(el.unit) || coeff[k] != static_cast<std::int64_t>(el.coeff) ||
+          scen[k] != b.scenario || kern[k] != b.kernel)
+        throw InputError("--covariance " + path + ": group '" + sel.name +
+                         "' was made from a different selection (element " + std::to_string(k) + " differs)");
+    }
+  }
+  const std::string tr = h5::attr_text(g.get(), "transform");
+  if (!tr.empty() && tr != transform)
+    throw InputError("--covariance " + path + ": made with transform '" + tr + "', this forecast uses '" + transform + "'");
+  double factor = 1.0;
+  if (h5::attr_text(g.get(), "hartlap_applied") == "1") factor = std::stod(h5::attr_text(g.get(), "hartlap_factor"));
+  Eigen::MatrixXd C = Eigen::Map<const Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>>(
+      v.data(), static_cast<Eigen::Index>(d), static_cast<Eigen::Index>(d));
+  return {C, factor};
+}
+}  // namespace
+
 FisherModel fisher_model(const Catalogue& cat, const Selection& sel_in, const Stencil& st, Transform transform,
-                         bool shrink) {
+                         bool shrink, const std::string& covariance_file) {
   FisherModel m;
   m.selection = sel_in;
   m.fiducial = cat.load(m.selection, st.fiducial_entries);
@@ -128,11 +169,16 @@ FisherModel fisher_model(const Catalogue& cat, const Selection& sel_in, const St
     m.diff.push_back((plus[k] - minus[k]) / st.pairs[k].delta);
   }
   const std::size_t n = static_cast<std::size_t>(m.fiducial.rows()), d = static_cast<std::size_t>(m.fiducial.cols());
-  require_realisations(n, d, m.selection.name, shrink);
-  const auto mc = mean_cov(m.fiducial);
-  m.mean = mc.mean;
-  m.cov = shrink ? ledoit_wolf(m.fiducial).cov : mc.cov;
-  m.hartlap = shrink ? 1.0 : hartlap_factor(n, d);
+  if (covariance_file.empty()) {
+    require_realisations(n, d, m.selection.name, shrink);
+    const auto mc = mean_cov(m.fiducial);
+    m.mean = mc.mean;
+    m.cov = shrink ? ledoit_wolf(m.fiducial).cov : mc.cov;
+    m.hartlap = shrink ? 1.0 : hartlap_factor(n, d);
+  } else {
+    m.mean = m.fiducial.colwise().mean().transpose();
+    std::tie(m.cov, m.hartlap) = external_covariance(cat, m.selection, m.transform.describe(), covariance_file);
+  }
   m.precision = m.hartlap * spd_inverse(m.cov, "the covariance of " + what);
   m.derivatives.resize(static_cast<Eigen::Index>(d), static_cast<Eigen::Index>(st.params.size()));
   for (std::size_t j = 0; j < st.params.size(); ++j) {
@@ -253,7 +299,7 @@ void run_fisher(const FisherOptions& o) {
   std::vector<Row> rows;
   std::vector<std::string> names;
   for (auto& sel : sels) {
-    auto m = detail::fisher_model(cat, sel, st, o.transform, o.shrink);
+    auto m = detail::fisher_model(cat, sel, st, o.transform, o.shrink, o.covariance_file);
     if (static_cast<std::size_t>(m.fiducial.cols()) < np)
       throw InputError("selection '" + m.selection.name + "' has " + std::to_string(m.fiducial.cols()) +
                        " coefficients for " + std::to_string(np) +
@@ -269,7 +315,9 @@ void run_fisher(const FisherOptions& o) {
     std::vector<Check> checks;
     const std::size_t n = static_cast<std::size_t>(m.fiducial.rows()), d = row.n_data;
     const std::size_t h = n / 2;
-    if (o.shrink ? h >= 3 : h >= d + 3) {  // Ledoit-Wolf on 2 rows does not shrink at all
+    if (!o.covariance_file.empty()) {
+      row.flags.push_back("half-covariance check skipped: the covariance comes from " + o.covariance_file);
+    } else if (o.shrink ? h >= 3 : h >= d + 3) {  // Ledoit-Wolf on 2 rows does not shrink at all
       const Eigen::MatrixXd Xh = m.fiducial.topRows(static_cast<Eigen::Index>(h));
       const Eigen::MatrixXd C = o.shrink ? ledoit_wolf(Xh).cov : mean_cov(Xh).cov;
       const std::string label = "half covariance realisations (" + std::to_string(h) + ")";

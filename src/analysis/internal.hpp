@@ -87,8 +87,10 @@ struct FisherModel {
   Eigen::MatrixXd fisher;
   Transformer transform;
 };
+/// `covariance_file`: take C from a `spinflip covariance` output (the group of
+/// the same selection name, else a root `cov` dataset) instead of the fiducial sample.
 FisherModel fisher_model(const Catalogue& cat, const Selection& sel, const Stencil& st, Transform transform,
-                         bool shrink);
+                         bool shrink, const std::string& covariance_file = "");
 /// Names in Fisher coordinates: "log10(name)" for log parameters.
 std::string fisher_param_name(const Design& d, std::size_t i);
 

@@ -17,6 +17,8 @@ RegisterVerb fisher_verb(
       sub.add_option("--tolerance", o->tolerance, "flag a convergence check that moves a 1-sigma error by more than this fraction")
           ->capture_default_str();
       sub.add_flag("--combined", o->combined, "also the Coulton & Wandelt (2023) combined estimator");
+      sub.add_option("--covariance", o->covariance_file,
+                     "take C from a `spinflip covariance` output (same selection names) or a file with a /cov dataset");
       sub.add_flag("--shrink", o->shrink, "Ledoit-Wolf (2004) shrunk covariance (no Hartlap factor)");
       return [=]() {
         if (world_rank() != 0) return 0;

@@ -66,6 +66,29 @@ run("fisher", cat, "-s", "name=ps;kernel=power", "--transform", "standardise", "
 with h5py.File(out) as f, h5py.File(out_s) as g:
     check(np.allclose(f["ps/fisher"][()], g["ps/fisher"][()], rtol=1e-8), "Fisher invariant under standardisation")
 
+# The known-C path: with the true C supplied, F is exactly AᵀC⁻¹A (Tegmark,
+# Taylor & Heavens 1997 eq. 15; rounding only), since the derivatives are exact.
+known = os.path.join(d, "known_cov.h5")
+with h5py.File(out) as f:
+    cols = model_columns(f["ps"], truth)
+with h5py.File(known, "w") as k:
+    k["cov"] = truth["C"][np.ix_(cols, cols)]
+out_k = os.path.join(d, "fisher_known.h5")
+run("fisher", cat, "-s", "name=ps;kernel=power", "--covariance", known, "--no-plot", "-o", out_k)
+with h5py.File(out_k) as f:
+    A = truth["A"][cols]
+    F_true = A.T @ np.linalg.solve(truth["C"][np.ix_(cols, cols)], A)
+    check(np.allclose(f["ps/fisher"][()], F_true, rtol=1e-9), "--covariance with the true C: F == AᵀC⁻¹A exactly")
+# A `spinflip covariance` output as --covariance reproduces the sample-covariance Fisher.
+cov = os.path.join(d, "cov.h5")
+run("covariance", cat, "-s", "name=ps;kernel=power", "--no-plot", "-o", cov)
+out_c = os.path.join(d, "fisher_cov.h5")
+run("fisher", cat, "-s", "name=ps;kernel=power", "--covariance", cov, "--no-plot", "-o", out_c)
+with h5py.File(out) as f, h5py.File(out_c) as g:
+    check(np.allclose(f["ps/fisher"][()], g["ps/fisher"][()], rtol=1e-10), "--covariance cov.h5 == built-in covariance")
+p = run("fisher", cat, "-s", "name=ps;kernel=power;unit=0", "--covariance", cov, "--no-plot", "-o", out_c, expect=2)
+check("needs 8 x 8" in p.stderr, "a covariance of another selection is refused")
+
 # Noisy derivatives (stencil noise not matched): Coulton & Wandelt (2023) show
 # the standard estimator overestimates the information (σ too small) and the
 # compressed one underestimates it; the combined one lies between.

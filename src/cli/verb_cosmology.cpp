@@ -1,6 +1,6 @@
 // spinflip cosmology: a table of the background quantities an observer needs to
 // plan a band — z, ν, comoving distance, H(z), D(z), f(z), the 21-cm prefactor
-// and the transverse size of one arcminute.
+// the transverse size of one arcminute and the horizon wedge slope m(z).
 #include <cmath>
 #include <cstdio>
 #include <memory>
@@ -13,6 +13,7 @@
 #include "core/config.hpp"
 #include "core/errors.hpp"
 #include "cosmo/cosmology.hpp"
+#include "instrument/instrument.hpp"
 
 namespace spinflip::cli {
 namespace {
@@ -85,14 +86,14 @@ RegisterVerb cosmology_verb(
         if (world_rank() != 0) return 0;
         std::printf("# h=%.4f omega_m=%.4f omega_b=%.5f sigma8=%.4f n_s=%.4f T_cmb=%.4f K\n", p.h, p.omega_m,
                     p.omega_b, p.sigma8, p.n_s, p.T_cmb_K);
-        std::printf("# %8s %12s %14s %14s %10s %10s %12s %14s\n", "z", "freq_MHz", "D_C_Mpc", "H_km_s_Mpc", "D(z)",
-                    "f(z)", "Tb0_mK", "Mpc_per_arcmin");
+        std::printf("# %8s %12s %14s %14s %10s %10s %12s %14s %12s\n", "z", "freq_MHz", "D_C_Mpc", "H_km_s_Mpc",
+                    "D(z)", "f(z)", "Tb0_mK", "Mpc_per_arcmin", "wedge_slope");
         const double arcmin = std::numbers::pi / (180.0 * 60.0);
         for (double z : zs) {
           const double dc = c.comoving_distance_mpc(z);
-          std::printf("  %8.4f %12.5f %14.4f %14.4f %10.6f %10.6f %12.5f %14.6f\n", z, cosmo::frequency_MHz(z), dc,
-                      c.hubble_km_s_mpc(z), c.growth_factor(z), c.growth_rate(z), cosmo::tb_prefactor_mK(z, c),
-                      dc * arcmin);
+          std::printf("  %8.4f %12.5f %14.4f %14.4f %10.6f %10.6f %12.5f %14.6f %12.6f\n", z, cosmo::frequency_MHz(z),
+                      dc, c.hubble_km_s_mpc(z), c.growth_factor(z), c.growth_rate(z), cosmo::tb_prefactor_mK(z, c),
+                      dc * arcmin, instrument::wedge_slope(dc, c.hubble_km_s_mpc(z), z, 90.0));
         }
         return 0;
       };

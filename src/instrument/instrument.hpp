@@ -81,7 +81,7 @@ class Scenario {
   Settings settings_;
   std::uint32_t index_;
   std::size_t n_perp_, n_los_;
-  std::vector<std::vector<float>> uv_time_;
+  std::vector<float> uv_time_;  // [uv cell][LOS cell]: the apply loop runs along the LOS
   std::vector<double> slopes_, sigma_unit_;  // sigma_unit_: σ·sqrt(t) per LOS cell
 };
 

@@ -167,6 +167,17 @@ PlanReport plan(const Campaign& c, const PlanOptions& options) {
         std::to_string(d.points) + " points × " + std::to_string(d.realisations) + " realisations = " +
         std::to_string(d.entries()) + " entries" + extra);
   }
+  // Stencil realisations beyond the fiducial's have no fiducial entry to difference against.
+  std::size_t fid_real = 0;
+  for (const auto& d : c.designs())
+    if (d.kind == "fiducial") fid_real = d.realisations;
+  for (std::size_t b = 0; b < c.designs().size(); ++b)
+    if (c.designs()[b].kind == "stencil" && c.designs()[b].realisations > fid_real) {
+      const std::string k = "designs." + std::to_string(b) + ".realisations";
+      r.warnings.push_back(cfg.location(k) + ": " + k + " = " + std::to_string(c.designs()[b].realisations) +
+                           " exceeds the fiducial's " + std::to_string(fid_real) +
+                           ": the extra stencil realisations have no fiducial entry with the same seeds");
+    }
   say("entries: " + std::to_string(c.entries().size()) + " (points × realisations, " +
       std::to_string(c.points().size()) + " points)");
 

@@ -2,13 +2,23 @@
 // cone, units and per-rank memory, and refuse (exit 2) what cannot run.
 #include <mpi.h>
 
+#include <chrono>
+#include <cmath>
+#include <filesystem>
 #include <fstream>
 #include <iostream>
+#include <sstream>
+#include <unistd.h>
 
 #include "campaign/campaign.hpp"
 #include "campaign/plan.hpp"
 #include "cli/verbs.hpp"
 #include "core/errors.hpp"
+#include "core/log.hpp"
+#ifdef SPINFLIP_HAVE_DRIVER
+#include "campaign/driver.hpp"
+#include "catalogue/hdf5.hpp"
+#endif
 
 namespace spinflip::cli {
 namespace {
@@ -17,7 +27,58 @@ struct PlanArgs {
   std::string campaign_file, points_csv;
   double memory_limit_gb = 0;
   int ranks_per_node = 0;
+  bool probe = false;
 };
+
+std::string fmt(double v, int precision = 3) {
+  std::ostringstream os;
+  os.precision(precision);
+  os << v;
+  return os.str();
+}
+
+#ifdef SPINFLIP_HAVE_DRIVER
+// One entry through the real driver (spinflip run with max_entries = 1) on this
+// rank alone, into a scratch catalogue that is removed afterwards. The entry's
+// own wall time comes from the catalogue; the rest of the run is setup (scenario
+// uv tables, catalogue creation), paid once per run and rank.
+struct ProbeResult { double entry_s = 0, total_s = 0; };
+
+ProbeResult probe_one_entry(const campaign::Campaign& c, double memory_limit_gb) {
+  namespace fs = std::filesystem;
+  const fs::path dir = fs::temp_directory_path() / ("spinflip-probe-" + std::to_string(::getpid()));
+  struct Cleanup {
+    fs::path d;
+    ~Cleanup() {
+      std::error_code ec;
+      fs::remove_all(d, ec);
+    }
+  } cleanup{dir};
+  fs::create_directories(dir);
+  campaign::RunOptions opt;
+  opt.output = dir / "probe.h5";
+  opt.group_size = 1;  // the probe runs on one rank; the memory estimate above covers the group
+  opt.max_entries = 1;
+  opt.memory_limit_gb = memory_limit_gb;
+  log::init(0, 1, log::Verbosity::quiet);  // the driver's progress lines are not plan's output
+  const auto t0 = std::chrono::steady_clock::now();
+  const auto result = campaign::run(c, opt, MPI_COMM_SELF);
+  const double total = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  log::init(world_rank(), world_size(), log::Verbosity::normal);
+  if (result.ran != 1) throw InternalError("plan --probe: the driver ran " + std::to_string(result.ran) + " entries");
+  if (result.failed > 0)
+    throw ModelError("plan --probe: the first entry failed (see spinflip status on a real run); no timing");
+  namespace h5 = catalogue::h5;
+  h5::Handle file = h5::file(SPINFLIP_H5_ID(H5Fopen(opt.output.c_str(), H5F_ACC_RDONLY, H5P_DEFAULT)));
+  h5::Handle ds = h5::dataset(SPINFLIP_H5_ID(H5Dopen2(file, "/entries/wall_time_s", H5P_DEFAULT)));
+  std::vector<double> t(static_cast<std::size_t>(h5::dims(ds).at(0)));
+  SPINFLIP_H5(H5Dread(ds, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, t.data()));
+  ProbeResult r{0, total};
+  for (double x : t)
+    if (std::isfinite(x)) r.entry_s = x;
+  return r;
+}
+#endif
 
 int ranks_on_this_node() {
   MPI_Comm local;
@@ -40,6 +101,10 @@ RegisterVerb plan_verb(
       sub.add_option("--ranks-per-node", a->ranks_per_node,
                      "ranks the run will place on one node (default: the ranks of this launch on this node)")
           ->check(CLI::PositiveNumber);
+#ifdef SPINFLIP_HAVE_DRIVER
+      sub.add_flag("--probe", a->probe,
+                   "time one entry through the driver (on rank 0, scratch catalogue) and estimate the campaign's cost");
+#endif
       sub.add_option("--points-csv", a->points_csv,
                      "write the design points (point, design, role, seed_point, parameters...) to this CSV file");
       return [a]() {
@@ -64,6 +129,20 @@ RegisterVerb plan_verb(
                     << (report.problems.size() == 1 ? "" : "s") << ": the campaign cannot run as it is\n";
           return 2;
         }
+#ifdef SPINFLIP_HAVE_DRIVER
+        if (a->probe) {
+          const auto p = probe_one_entry(c, a->memory_limit_gb);
+          const double n = static_cast<double>(c.entries().size());
+          const double rank_hours = n * p.entry_s / 3600.0;
+          std::cout << "probe: one entry (point " << c.entries().front().point << ", "
+                    << campaign::role_name(c.points()[c.entries().front().point].role) << ") took " << fmt(p.entry_s)
+                    << " s, setup " << fmt(std::max(0.0, p.total_s - p.entry_s)) << " s per run\n"
+                    << "estimate: " << c.entries().size() << " entries × " << fmt(p.entry_s) << " s = "
+                    << fmt(rank_hours, 3) << " rank-hours (group size 1); on " << opt.ranks_per_node
+                    << " ranks ≈ " << fmt(n * p.entry_s / opt.ranks_per_node / 60.0 + (p.total_s - p.entry_s) / 60.0, 3)
+                    << " min (entries vary in cost with their parameters)\n";
+        }
+#endif
         std::cout << "plan: OK, " << c.entries().size() << " entries\n";
         return 0;
       };

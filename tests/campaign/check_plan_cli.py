@@ -61,6 +61,13 @@ if not m or int(m.group(1)) != expected:
     failures.append(f"tiny: entries {m.group(1) if m else '?'}, the designs imply {expected}")
 
 
+# The probe times one real entry through the driver, in a scratch catalogue it removes.
+if "--with-probe" in sys.argv[1:]:
+    r = plan(tiny, "--probe")
+    m = re.search(r"probe: one entry .* took ([\d.e+-]+) s", r.stdout)
+    if r.returncode != 0 or not m or not float(m.group(1)) > 0:
+        failures.append(f"--probe: exit {r.returncode}, stdout {r.stdout[-300:]!r}, stderr {r.stderr[-300:]!r}")
+
 # 2. Memory: the generator's slabs divide by the group size (ceil(n_perp/g) rows of
 #    axis 0 each); the instrument works on a whole cone on every rank and does not.
 def memory(text):

@@ -30,7 +30,7 @@ enum class LosCoordinate { frequency_MHz, redshift, distance_mpc };
 /// How every file of the manifest is laid out.
 struct Layout {
   Format format = Format::automatic;  // automatic: from each file's extension
-  std::string dataset = "delta_tb";   // HDF5 dataset of the cone
+  std::string dataset = "delta_tb_mK";  // HDF5 dataset of the cone (what `spinflip cone` writes)
   std::array<int, 3> file_axis{0, 1, 2};  // file axis holding campaign axis x, y, line of sight
   double to_mK = 1.0;                 // 1 (mK) or 1000 (K)
   LosCoordinate los = LosCoordinate::frequency_MHz;

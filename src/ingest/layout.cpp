@@ -20,7 +20,7 @@ void declare_keys(core::Schema& s) {
   s.add({.path = "ingest.format", .type = ValueType::string, .default_value = std::string("auto"),
          .choices = {"auto", "hdf5", "npy", "raw"},
          .doc = "file format (auto: .h5/.hdf5 HDF5, .npy NumPy, anything else raw float32 with a FILE.toml sidecar)"});
-  s.add({.path = "ingest.dataset", .type = ValueType::string, .default_value = std::string("delta_tb"),
+  s.add({.path = "ingest.dataset", .type = ValueType::string, .default_value = std::string("delta_tb_mK"),
          .doc = "HDF5: path of the 3D brightness-temperature dataset inside each file"});
   s.add({.path = "ingest.axis_order", .type = ValueType::string_array,
          .default_value = std::vector<std::string>{"x", "y", "los"},

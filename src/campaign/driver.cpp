@@ -382,6 +382,8 @@ class Worker {
         world_rank_(world_rank), progress_(progress), counter_(counter) {}
 
   /// Run one entry; true if it finished (done or failed), false if abandoned.
+  RunResult::Seconds times;  // this rank's time by phase
+
   bool run_entry(std::size_t index) {
     const double t0 = MPI_Wtime();
     const Entry& entry = c_.entries().at(index);
@@ -395,6 +397,7 @@ class Worker {
       failure = f.message;
     }
     const double seconds = MPI_Wtime() - t0;
+    const double w0 = MPI_Wtime();
     if (grank_ == 0) {
       if (failure.empty()) {
         result.wall_time_s = seconds;
@@ -409,6 +412,7 @@ class Worker {
         log::warn("entry {} (point {}, realisation {}) failed: {}", index, entry.point, entry.realisation, failure);
       }
     }
+    times.catalogue += MPI_Wtime() - w0;
     tick();
     return true;
   }
@@ -455,6 +459,12 @@ class Worker {
     // collective call, so a bad parameter fails the entry on all of them alike.
     std::optional<sim::ConeSettings> settings;
     std::optional<cosmo::Cosmology> cosmology;
+    double t = MPI_Wtime();
+    auto lap = [&t](double& into) {
+      const double now = MPI_Wtime();
+      into += now - t;
+      t = now;
+    };
     agreed([&] {
       const core::Config cfg = c_.config_for_point(entry.point);
       settings = sim::settings_from(cfg);
@@ -469,14 +479,17 @@ class Worker {
     result.x_hi = cone.x_hi_mean;
     result.mean_tb_mK = cone.tb_mean_mK;
     cone = sim::LightCone{};  // the slab is no longer needed
+    lap(times.generator);
 
     result.values.resize(setup_.scenarios.size());
     for (std::size_t s = 0; s < setup_.scenarios.size(); ++s) {
       core::Array3<float> observed = clean;
       agreed([&] { setup_.scenarios[s].apply(observed, setup_.geometry, key); });
       checkpoint();
+      lap(times.instrument);
       for (const auto& kernel : setup_.kernels) result.values[s].push_back(measure(*kernel, observed));
       checkpoint();
+      lap(times.kernels);
     }
   }
 
@@ -538,6 +551,7 @@ int ranks_per_node(MPI_Comm world) {
 catalogue::Layout layout_of(const Campaign& campaign) { return Setup(campaign).layout; }
 
 RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
+  const double t_start = MPI_Wtime();
   const int wrank = rank_of(world), wsize = size_of(world);
   const core::Config& cfg = c.config();
   const int g = options.group_size ? *options.group_size : static_cast<int>(cfg.integer("campaign.group_size"));
@@ -559,13 +573,16 @@ RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
                              : std::string()));
   });
 
+  log::debug("run: plan checks passed ({:.2f} s)", MPI_Wtime() - t_start);
   const Setup setup(c);
+  log::debug("run: scenarios and kernels set up ({:.2f} s)", MPI_Wtime() - t_start);
   int exists = 0;
   if (wrank == 0) exists = fs::exists(output) ? 1 : 0;
   SPINFLIP_CHECK_MPI(MPI_Bcast(&exists, 1, MPI_INT, 0, world));
   catalogue::Catalogue cat = exists ? catalogue::Catalogue::open(output, setup.layout, world)
                                     : catalogue::Catalogue::create(output, setup.layout, world);
   const auto statuses = cat.statuses();
+  log::debug("run: catalogue ready ({:.2f} s)", MPI_Wtime() - t_start);
   std::vector<std::size_t> todo = todo_entries(statuses, options.retry_failed);
   std::size_t done0 = 0, failed0 = 0;
   for (auto s : statuses) {
@@ -594,7 +611,10 @@ RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
   Worker worker(c, setup, cat, group.comm, wrank, progress.get(), counter);
 
   bool abandoned = false;
+  const double t_farm = MPI_Wtime();
+  double farm_seconds = 0;
   while (true) {
+    const double f0 = MPI_Wtime();
     int mine = stop_signal() != 0 ? 1 : 0, any = 0;
     SPINFLIP_CHECK_MPI(MPI_Allreduce(&mine, &any, 1, MPI_INT, MPI_MAX, group.comm));
     long long index = -1;
@@ -606,6 +626,7 @@ RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
       }
     }
     SPINFLIP_CHECK_MPI(MPI_Bcast(&index, 1, MPI_LONG_LONG, 0, group.comm));
+    farm_seconds += MPI_Wtime() - f0;
     if (index < 0) break;
     if (!worker.run_entry(todo[static_cast<std::size_t>(index)])) {
       abandoned = true;
@@ -614,7 +635,9 @@ RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
   }
 
   // Every group has left the farm; counters are final once all ranks are here.
+  const double t_left = MPI_Wtime();
   SPINFLIP_CHECK_MPI(MPI_Barrier(world));
+  const double t_end = MPI_Wtime();
   int sig = stop_signal(), any_sig = 0;
   SPINFLIP_CHECK_MPI(MPI_Allreduce(&sig, &any_sig, 1, MPI_INT, MPI_MAX, world));
   int any_abandoned = 0, mine_abandoned = abandoned ? 1 : 0;
@@ -625,6 +648,17 @@ RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
   cat.close();
 
   RunResult r;
+  {
+    RunResult::Seconds mine = worker.times;
+    mine.setup = t_farm - t_start;
+    mine.farm = farm_seconds;
+    mine.tail = t_end - t_left;
+    mine.total = t_end - t_start;
+    double v[8] = {mine.setup, mine.generator, mine.instrument, mine.kernels, mine.catalogue, mine.farm, mine.tail,
+                   mine.total};
+    SPINFLIP_CHECK_MPI(MPI_Allreduce(MPI_IN_PLACE, v, 8, MPI_DOUBLE, MPI_SUM, world));
+    r.seconds = {v[0], v[1], v[2], v[3], v[4], v[5], v[6], v[7]};
+  }
   r.total = statuses.size();
   r.ran = static_cast<std::size_t>(counts[0] + counts[1]);
   r.done = done0 + static_cast<std::size_t>(counts[0]);
@@ -644,6 +678,12 @@ RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
       log::info("finished: {} entries run, {} done, {} failed, {} pending of {}", r.ran, r.done, r.failed, r.pending,
                 r.total);
     if (r.failed) log::warn("{} entries failed: spinflip status {} lists them", r.failed, output.string());
+    const auto& t = r.seconds;
+    auto pc = [&](double x) { return t.total > 0 ? 100.0 * x / t.total : 0.0; };
+    log::info("rank-seconds {:.2f}: setup {:.1f}%, generator {:.1f}%, instrument {:.1f}%, kernels {:.1f}%, "
+              "catalogue {:.2f}%, task farm {:.2f}%, end wait {:.1f}%; {:.3f} entries/s",
+              t.total, pc(t.setup), pc(t.generator), pc(t.instrument), pc(t.kernels), pc(t.catalogue), pc(t.farm),
+              pc(t.tail), (t_end - t_farm) > 0 ? static_cast<double>(r.ran) / (t_end - t_farm) : 0.0);
   }
   return r;
 }

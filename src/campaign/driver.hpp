@@ -34,6 +34,17 @@ struct RunResult {
   std::size_t ran = 0;          // entries finished (done or failed) by this run
   bool stopped_early = false;   // a signal (or max_entries) ended the run before the work list
   int signal = 0;               // the signal that stopped it, 0 if none
+  /// Rank-seconds summed over the world, by phase (docs/driver.md, "Overhead").
+  struct Seconds {
+    double setup = 0;       // plan check, scenario tables, catalogue create/open
+    double generator = 0;   // settings, generate_cone, gathering the cone
+    double instrument = 0;  // Scenario::apply
+    double kernels = 0;     // slice/chunk extraction, Kernel::measure, gathering values
+    double catalogue = 0;   // row writes and counter updates of the group leaders
+    double farm = 0;        // taking entries: stop agreement, atomic counter, broadcast
+    double tail = 0;        // waiting at the end for the last groups
+    double total = 0;       // wall time × ranks
+  } seconds;
 };
 
 /// Run (or resume) the campaign into its catalogue; collective on `world`.

@@ -35,6 +35,10 @@ struct Block {
 /// One coefficient of a data vector.
 struct Element {
   std::size_t block, unit, coeff;
+  /// reduce=rotation: the value is the mean over these coefficients (coeff is
+  /// the first), the S2 orientation offset δ = (l2 − l1) mod L in `delta`.
+  std::vector<std::size_t> average = {};
+  long delta = -1;
 };
 
 /// A resolved --select: which coefficients, in data-vector order, and why.

@@ -172,8 +172,14 @@ Eigen::MatrixXd Catalogue::load(const Selection& selection, const std::vector<st
       h5::read_row3(impl_->values[b].get(), entries[r], row, what);
       for (std::size_t k = 0; k < selection.elements.size(); ++k) {
         const auto& el = selection.elements[k];
-        if (el.block == b)
-          out(static_cast<Eigen::Index>(r), static_cast<Eigen::Index>(k)) = row[el.unit * blk.n_coeff + el.coeff];
+        if (el.block != b) continue;
+        double v = row[el.unit * blk.n_coeff + el.coeff];
+        if (!el.average.empty()) {
+          v = 0;
+          for (std::size_t c : el.average) v += row[el.unit * blk.n_coeff + c];
+          v /= static_cast<double>(el.average.size());
+        }
+        out(static_cast<Eigen::Index>(r), static_cast<Eigen::Index>(k)) = v;
       }
     }
   }

@@ -164,7 +164,7 @@ void write_selection(hid_t group, const Catalogue& cat, const Selection& sel) {
   h5::write_attr(g.get(), "text", sel.text);
   h5::write_attr(g.get(), "record", selection_record(cat, sel));
   std::vector<std::string> scen, kern;
-  std::vector<std::int64_t> unit, coeff;
+  std::vector<std::int64_t> unit, coeff, n_avg;
   std::vector<double> freq, z;
   for (const auto& el : sel.elements) {
     const auto& b = cat.blocks()[el.block];
@@ -172,6 +172,7 @@ void write_selection(hid_t group, const Catalogue& cat, const Selection& sel) {
     kern.push_back(b.kernel);
     unit.push_back(static_cast<std::int64_t>(el.unit));
     coeff.push_back(static_cast<std::int64_t>(el.coeff));
+    n_avg.push_back(static_cast<std::int64_t>(std::max<std::size_t>(el.average.size(), 1)));
     freq.push_back(b.unit_freq_MHz.size() == b.n_units ? b.unit_freq_MHz[el.unit] : NAN);
     z.push_back(b.unit_z.size() == b.n_units ? b.unit_z[el.unit] : NAN);
   }
@@ -180,6 +181,7 @@ void write_selection(hid_t group, const Catalogue& cat, const Selection& sel) {
   h5::write_strings(g.get(), "kernel", kern);
   h5::write_ints(g.get(), "unit", unit, {n});
   h5::write_ints(g.get(), "coeff", coeff, {n});
+  h5::write_ints(g.get(), "n_averaged", n_avg, {n});  // >1: a rotation mean starting at coeff
   h5::write_doubles(g.get(), "unit_freq_MHz", freq, {n});
   h5::write_doubles(g.get(), "unit_z", z, {n});
   h5::write_strings(g.get(), "label", element_labels(cat, sel));

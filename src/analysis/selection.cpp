@@ -2,6 +2,8 @@
 //   name=LABEL  kernel=K[,K]  scenario=S[,S]  freq=LO:HI  z=LO:HI  unit=I[,I]|LO:HI
 //   every=N  <axis>=V[,V]|LO:HI   (any coefficient axis: order, j1, k_mean, n_modes, …)
 #include <algorithm>
+#include <array>
+#include <map>
 #include <cmath>
 #include <cstdlib>
 #include <limits>
@@ -87,6 +89,7 @@ Selection select(const Catalogue& catalogue, const std::string& text, std::size_
   std::vector<std::string> kernels, scenarios;
   std::optional<Filter> freq, z, unit;
   std::size_t every = 1;
+  bool rotation = false;
   std::vector<Filter> axis_filters;
   std::vector<std::string> described;
   for (const auto& term : split(text, ';')) {
@@ -94,7 +97,7 @@ Selection select(const Catalogue& catalogue, const std::string& text, std::size_
     const auto eq = term.find('=');
     if (eq == std::string::npos)
       throw InputError("--select '" + text + "': term '" + term +
-                       "' is not key=value (keys: name, kernel, scenario, freq, z, unit, every, or a coefficient axis)");
+                       "' is not key=value (keys: name, kernel, scenario, freq, z, unit, every, reduce, or a coefficient axis)");
     const std::string key = trim(term.substr(0, eq)), value = trim(term.substr(eq + 1));
     if (key == "name") {
       if (value.empty() || value.find('/') != std::string::npos)
@@ -118,6 +121,10 @@ Selection select(const Catalogue& catalogue, const std::string& text, std::size_
       z = parse_filter(key, value, text);
     } else if (key == "unit") {
       unit = parse_filter(key, value, text);
+    } else if (key == "reduce") {
+      if (value != "rotation" && value != "none")
+        throw InputError("--select '" + text + "': reduce=" + value + " is not allowed (allowed: rotation, none)");
+      rotation = value == "rotation";
     } else if (key == "every") {
       const double v = number(value, key, text);
       if (v < 1 || v != std::floor(v) || v > 1e9)
@@ -144,8 +151,9 @@ Selection select(const Catalogue& catalogue, const std::string& text, std::size_
   for (const auto& f : axis_filters)
     if (!axes_seen.count(f.key))
       throw InputError("--select '" + text + "': '" + f.key +
-                       "' is neither a selection key (name, kernel, scenario, freq, z, unit, every) nor a coefficient "
+                       "' is neither a selection key (name, kernel, scenario, freq, z, unit, every, reduce) nor a coefficient "
                        "axis of the selected kernels (axes: " + join({axes_seen.begin(), axes_seen.end()}) + ")");
+  std::size_t rotated = 0;
   for (std::size_t b : chosen) {
     const auto& blk = blocks[b];
     std::vector<std::size_t> units;
@@ -170,9 +178,41 @@ Selection select(const Catalogue& catalogue, const std::string& text, std::size_
       }
       if (ok) coeffs.push_back(c);
     }
+    // reduce=rotation on a kernel stored per orientation: S1(j) = mean over ℓ,
+    // S2(j1, j2, δ) = mean over ℓ1 at ℓ2 = (ℓ1 + δ) mod L (DESIGN.md §6).
+    std::vector<Element> proto;
+    const bool per_orientation = blk.axes.count("order") && blk.axes.count("j1") && blk.axes.count("l1") &&
+                                 blk.axes.count("j2") && blk.axes.count("l2") &&
+                                 (blk.attrs.count("reduce") == 0 || blk.attrs.at("reduce") != "rotation");
+    if (rotation && per_orientation) {
+      ++rotated;
+      const auto &order = blk.axes.at("order"), &j1 = blk.axes.at("j1"), &l1 = blk.axes.at("l1"),
+                 &j2 = blk.axes.at("j2"), &l2 = blk.axes.at("l2");
+      std::set<long> orientations;
+      for (std::size_t c = 0; c < blk.n_coeff; ++c)
+        if (order[c] == 1 && l1[c] >= 0) orientations.insert(std::lround(l1[c]));
+      const long L = std::max<long>(static_cast<long>(orientations.size()), 1);
+      std::map<std::array<long, 4>, std::size_t> slot;
+      for (std::size_t c : coeffs) {
+        const long o = std::lround(order[c]);
+        const long delta = o == 2 ? ((std::lround(l2[c]) - std::lround(l1[c])) % L + L) % L : -1;
+        const std::array<long, 4> key{o, o >= 1 ? std::lround(j1[c]) : -1, o == 2 ? std::lround(j2[c]) : -1, delta};
+        auto [it, fresh] = slot.try_emplace(key, proto.size());
+        if (fresh) proto.push_back({b, 0, c, {}, delta});
+        proto[it->second].average.push_back(c);
+      }
+    } else {
+      for (std::size_t c : coeffs) proto.push_back({b, 0, c});
+    }
     for (std::size_t k = 0; k < units.size(); k += every)
-      for (std::size_t c : coeffs) sel.elements.push_back({b, units[k], c});
+      for (auto el : proto) {
+        el.unit = units[k];
+        sel.elements.push_back(std::move(el));
+      }
   }
+  if (rotation && rotated == 0)
+    throw InputError("--select '" + text + "': reduce=rotation needs a scattering kernel stored per orientation "
+                     "(axes order, j1, l1, j2, l2 and reduce = \"none\") among the selected kernels");
   if (sel.elements.empty())
     throw InputError("--select '" + text + "' matches no coefficient in " + catalogue.path() +
                      " (kernels: " + join({all_kernels.begin(), all_kernels.end()}) +
@@ -190,7 +230,12 @@ std::vector<std::string> element_labels(const Catalogue& catalogue, const Select
     os << blk.scenario << "/" << blk.kernel << " u" << el.unit;
     if (blk.unit_freq_MHz.size() == blk.n_units) os << " f=" << blk.unit_freq_MHz[el.unit] << "MHz";
     if (blk.unit_z.size() == blk.n_units) os << " z=" << blk.unit_z[el.unit];
-    for (const auto& [name, v] : blk.axes) os << " " << name << "=" << v[el.coeff];
+    for (const auto& [name, v] : blk.axes) {
+      if (!el.average.empty() && name == "l1") os << " l1=-1";
+      else if (!el.average.empty() && name == "l2") os << " l2=" << el.delta;
+      else os << " " << name << "=" << v[el.coeff];
+    }
+    if (el.average.size() > 1) os << " (rotation mean of " << el.average.size() << ")";
     out.push_back(os.str());
   }
   return out;

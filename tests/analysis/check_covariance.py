@@ -75,6 +75,35 @@ with h5py.File(out2) as f:
     check(np.allclose(g["cov"][()], shrunk, rtol=1e-10), "Ledoit-Wolf shrunk covariance == direct numpy evaluation")
     check(g.attrs["hartlap_applied"] == 0, "no Hartlap factor on a shrunk covariance")
 
+# reduce=rotation on a per-orientation kernel, against the definition in
+# DESIGN.md §6 evaluated with numpy: S1(j) = mean_l S1(j,l) and
+# S2(j1,j2,δ) = mean_l1 S2(j1,l1,j2,(l1+δ) mod L).
+rot = os.path.join(d, "rot.h5")
+truth_r = make_catalogue.make(rot, n_fid=120, per_orientation=True)
+out_r = os.path.join(d, "rot_cov.h5")
+run("covariance", rot, "-s", "name=r;kernel=scattering;scenario=deep;reduce=rotation;unit=1", "--no-plot", "-o", out_r)
+ax = truth_r["scat_axes"]
+L = len(set(ax["l1"][ax["order"] == 1]))
+fr = np.flatnonzero(truth_r["entry_point"] == truth_r["fiducial_point"])
+fr = fr[np.argsort(truth_r["entry_realisation"][fr])]
+cols = [truth_r["index"][("deep", "scattering", 1, c)] for c in range(len(ax["order"]))]
+V = truth_r["values"][np.ix_(fr, cols)]
+ref = []
+for j in sorted(set(ax["j1"][ax["order"] == 1])):
+    ref.append(V[:, (ax["order"] == 1) & (ax["j1"] == j)].mean(1))
+s2 = ax["order"] == 2
+for j1, j2 in sorted(set(zip(ax["j1"][s2], ax["j2"][s2]))):
+    for delta in range(L):
+        m = s2 & (ax["j1"] == j1) & (ax["j2"] == j2) & (((ax["l2"] - ax["l1"]) % L) == delta)
+        ref.append(V[:, m].mean(1))
+ref = np.array(ref).T
+with h5py.File(out_r) as f:
+    check(f["r/mean"].shape[0] == ref.shape[1] and np.allclose(f["r/mean"][()], ref.mean(0), rtol=1e-12),
+          f"reduce=rotation: {ref.shape[1]} rotation means == numpy from the definition")
+    check(np.allclose(f["r/cov"][()], np.cov(ref, rowvar=False), rtol=1e-9), "reduce=rotation covariance == numpy.cov")
+    check(set(f["r/selection/n_averaged"][()]) == {L}, f"every reduced coefficient averages {L} orientations")
+run("covariance", cat, "-s", "kernel=power;reduce=rotation", "--no-plot", "-o", out_r, expect=2)
+
 # Transforms: log → numpy.cov of log(x); standardise → the correlation matrix.
 for tr in ("log", "standardise"):
     o = os.path.join(d, f"{tr}.h5")

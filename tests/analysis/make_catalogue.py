@@ -33,6 +33,28 @@ SCAT_AXES = {  # order, j1, l1, j2, l2 (rotation-averaged form)
 }
 
 
+def per_orientation_axes(J=2, L=4):
+    """Scattering stored per orientation (reduce = "none"): S0, S1(j, l), S2(j1, l1, j2, l2) for j2 > j1."""
+    ax = {k: [] for k in ("order", "j1", "l1", "j2", "l2")}
+
+    def add(o, a, b, c, d):
+        for k, v in zip(ax, (o, a, b, c, d)):
+            ax[k].append(v)
+    add(0, -1, -1, -1, -1)
+    for j in range(J):
+        for l in range(L):
+            add(1, j, l, -1, -1)
+    for j1 in range(J):
+        for j2 in range(j1 + 1, J):
+            for l1 in range(L):
+                for l2 in range(L):
+                    add(2, j1, l1, j2, l2)
+    return ax
+
+
+ROTATION_AVERAGED = SCAT_AXES
+
+
 def phi(theta):
     return np.array([np.log10(v) if p[2] else v for v, p in zip(theta, PARAMS)])
 
@@ -61,7 +83,9 @@ def full_index():
 
 
 def make(path, n_fid=300, n_stencil=60, n_train_points=20, n_train_real=3, seed=7, pending=0, failed=0,
-         no_fiducial=False, no_stencil=False, unmatched=False, fixed_strings=False, noise=1.0):
+         no_fiducial=False, no_stencil=False, unmatched=False, fixed_strings=False, noise=1.0, per_orientation=False):
+    global SCAT_AXES
+    SCAT_AXES = per_orientation_axes() if per_orientation else ROTATION_AVERAGED
     rng = np.random.default_rng(seed)
     idx = full_index()
     D = len(idx)
@@ -188,14 +212,14 @@ def make(path, n_fid=300, n_stencil=60, n_train_points=20, n_train_real=3, seed=
                 for a, v in SCAT_AXES.items():
                     g[a] = np.array(v, np.int32)
                 g.attrs["unit_kind"] = "slice"
-                g.attrs["reduce"] = "rotation"
+                g.attrs["reduce"] = "none" if per_orientation else "rotation"
                 g.attrs["normalise"] = 0
                 freq = np.linspace(125.0, 175.0, nu)
             g["unit_freq_MHz"] = freq
             g["unit_z"] = 1420.405751 / freq - 1.0
     return {"mu0": mu0, "A": A, "C": C, "const": const, "index": idx, "fiducial_point": fid_pt,
             "values": values, "entry_point": e_point, "entry_realisation": e_real, "status": status,
-            "roles": roles, "points": np.array(points)}
+            "roles": roles, "points": np.array(points), "scat_axes": {k: np.array(v) for k, v in SCAT_AXES.items()}}
 
 
 if __name__ == "__main__":

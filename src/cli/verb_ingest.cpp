@@ -58,10 +58,8 @@ RegisterVerb ingest_verb(
         const auto cfg = core::Config::from_file(a->campaign_file, schema);
         if (!cfg.has_table("ingest"))
           throw ConfigError(a->campaign_file + ": no [ingest] table (the campaign generates its cones)");
+        const auto problems = ingest::check_campaign(cfg, a->scan);  // what plan lists
         const auto manifest = ingest::manifest_from(cfg);
-        const cosmo::Cosmology cosmology(cosmo::parameters_from(cfg));
-        const auto target = ingest::target_from(sim::settings_from(cfg), cosmology);
-        const auto problems = ingest::check_all(manifest, target, cosmology, a->scan);
         if (!problems.empty()) {
           if (world_rank() == 0) {
             for (const auto& p : problems) std::cerr << "spinflip: error: " << p << "\n";
@@ -80,6 +78,8 @@ RegisterVerb ingest_verb(
           throw ConfigError("ingest: --cone " + std::to_string(a->cone) + ": the manifest has " +
                             std::to_string(manifest.rows.size()) + " cones (0.." +
                             std::to_string(manifest.rows.size() - 1) + ")");
+        const cosmo::Cosmology cosmology(cosmo::parameters_from(cfg));
+        const auto target = ingest::target_from(sim::settings_from(cfg), cosmology);
         const auto got = ingest::read_cone(manifest, static_cast<std::size_t>(a->cone), target, cosmology,
                                            MPI_COMM_WORLD);
         const auto whole = sim::allgather_cone(got.cone, MPI_COMM_WORLD);

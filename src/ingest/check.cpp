@@ -110,4 +110,16 @@ std::vector<std::string> check_all(const Manifest& m, const Target& target, cons
   return problems;
 }
 
+std::vector<std::string> check_campaign(const core::Config& config, bool scan) {
+  const Manifest m = manifest_from(config);
+  const cosmo::Cosmology c(cosmo::parameters_from(config));
+  return check_all(m, target_from(sim::settings_from(config), c), c, scan);
+}
+
+std::optional<std::size_t> row_of(const Manifest& m, const std::vector<double>& values, std::size_t realisation) {
+  for (std::size_t r = 0; r < m.rows.size(); ++r)
+    if (m.rows[r].realisation == realisation && m.rows[r].values == values) return r;
+  return std::nullopt;
+}
+
 }  // namespace spinflip::ingest

@@ -92,6 +92,14 @@ Target target_from(const sim::ConeSettings& settings, const cosmo::Cosmology& co
 /// named with different parameters. Empty: all rows can be read.
 std::vector<std::string> check_all(const Manifest& manifest, const Target& target,
                                    const cosmo::Cosmology& cosmology, bool scan);
+/// check_all for a campaign's configuration: manifest, its [cone] grid and
+/// cosmology, every file (what `spinflip plan` lists). ConfigError for a bad
+/// [ingest] key or an unreadable manifest; everything else is returned.
+std::vector<std::string> check_campaign(const core::Config& config, bool scan);
+/// The manifest row of (parameter values, realisation), if any.
+std::optional<std::size_t> row_of(const Manifest& manifest, const std::vector<double>& values,
+                                  std::size_t realisation);
+
 /// Throw InputError whose message is the problems, one per line.
 void throw_if_problems(const std::vector<std::string>& problems);
 

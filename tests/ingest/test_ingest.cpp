@@ -107,6 +107,10 @@ TEST(IngestManifest, PointsGroupRowsByParameterVector) {
   using R = std::vector<std::pair<std::size_t, std::size_t>>;
   EXPECT_EQ(p[0].realisations, (R{{0, 2}, {2, 0}}));  // (realisation, row), ascending
   EXPECT_EQ(p[1].realisations, (R{{0, 1}}));
+  EXPECT_EQ(row_of(m, {30.0, 1e4}, 2), std::optional<std::size_t>(0));
+  EXPECT_EQ(row_of(m, {30.0, 1e4}, 0), std::optional<std::size_t>(2));
+  EXPECT_FALSE(row_of(m, {30.0, 1e4}, 1).has_value());
+  EXPECT_FALSE(row_of(m, {40.0, 1e4}, 2).has_value());
   m.rows[2].role = "training";
   EXPECT_THROW(points_of(m), InputError);
 }

@@ -105,6 +105,11 @@ for crop in (True, False):
 img2 = image((128, 128))
 r = measure(img2, stats_text(6, 8))["scattering"]
 close(r["values"][0], reference(img2, 6, 8), what="128x128 J=6 L=8 cropped vs numpy")
+# elongated slices where the largest wavelet is wide compared with the short axis
+for shape in ((96, 160), (80, 200)):
+    im = image(shape)
+    r = measure(im, stats_text(6, 8))["scattering"]
+    close(r["values"][0], reference(im, 6, 8), what=f"{shape[0]}x{shape[1]} J=6 L=8 cropped vs numpy")
 r = measure(img2, stats_text(4, 4, extra="xi0 = 2.0\nsigma0 = 1.0\nslant = 0.7\n"))["scattering"]
 close(r["values"][0], reference(img2, 4, 4, xi0=2.0, sigma0=1.0, s=0.7), what="custom xi0/sigma0/slant vs numpy")
 

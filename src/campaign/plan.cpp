@@ -87,14 +87,15 @@ MemoryEstimate estimate_memory(const core::Config& cfg, std::size_t chunk_cells)
   m.persistent = static_cast<double>(with_array) * cone;
 #endif
 
-  // Instrument: the δT_b slab still held, the gathered clean cone, the observed copy and the
-  // transverse r2c spectrum of the whole cone (n_perp × (n_perp/2+1) × n_los complex floats).
+  // Instrument: the gathered clean cone (the driver frees the δT_b slab once gathered; while
+  // gathering, slab + cone is below the generator's peak), the observed copy and the transverse
+  // r2c spectrum of the whole cone (n_perp × (n_perp/2+1) × n_los complex floats).
   const double spectrum = np * (std::floor(np / 2) + 1) * nl * 2 * float_bytes;
-  m.instrument = slab + 2 * cone + spectrum;
+  m.instrument = std::max(slab + cone, 2 * cone + spectrum);
 
   // Kernels: clean + observed cone, one chunk copy and its r2c transform.
   const double cc = chunk_cells > 0 ? static_cast<double>(chunk_cells) : nl;
-  m.kernels = slab + 2 * cone + np * np * cc * float_bytes + np * np * (std::floor(cc / 2) + 1) * 2 * float_bytes;
+  m.kernels = 2 * cone + np * np * cc * float_bytes + np * np * (std::floor(cc / 2) + 1) * 2 * float_bytes;
 #else
   (void)chunk_cells;
 #endif

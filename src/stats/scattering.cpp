@@ -45,13 +45,14 @@ long signed_index(std::size_t i, std::size_t n) {
   return i < (n + 1) / 2 ? static_cast<long>(i) : static_cast<long>(i) - static_cast<long>(n);
 }
 
-/// Smallest divisor of n that is ≥ x. A divisor keeps the coarse samples a subset of
-/// the fine grid, so a coarse mean differs from the fine-grid mean only by aliased
-/// harmonics (other sizes also add the fine grid's own sampling error to the match).
+/// Smallest 2^a 3^b 5^c ≥ x (a fast FFT size), or n when that is not smaller than n.
 std::size_t nice_size(std::size_t x, std::size_t n) {
-  for (std::size_t d = std::max<std::size_t>(x, 1); d < n; ++d)
-    if (n % d == 0) return d;
-  return n;
+  std::size_t best = n;
+  for (std::size_t p2 = 1; p2 < 2 * n; p2 *= 2)
+    for (std::size_t p3 = p2; p3 < 2 * n; p3 *= 3)
+      for (std::size_t p5 = p3; p5 < 2 * n; p5 *= 5)
+        if (p5 >= x && p5 < best) best = p5;
+  return best;
 }
 
 /// Smallest circular arc [start, start+len) of 0..n-1 covering every flagged index.
@@ -122,8 +123,8 @@ Bank build_bank(const ScatteringParams& p, std::size_t n1, std::size_t n2) {
         };
         const auto a1 = arc(1e-7, 0), a2 = arc(1e-7, 1);
         // |x⋆ψ| is not band-limited (it has cusps where x⋆ψ vanishes), so a mean over coarse samples
-        // converges slowly: 4× the 1e-3 band of ψ̂ and at least 64 samples per axis (a divisor of N)
-        // keep every coefficient within the contract's 1e-4 (tests/stats/check_scattering.py; 2× gave 2e-3).
+        // converges slowly: 4× the 1e-3 band of ψ̂ and at least 64 samples per axis keep every
+        // coefficient within the contract's 1e-4 (tests/stats/check_scattering.py; 2× gave 2e-3).
         constexpr double band = 1e-3, fac = 4.0;
         constexpr std::size_t minsz = 64;
         const auto e1 = arc(band, 0), e2 = arc(band, 1);

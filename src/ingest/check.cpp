@@ -91,7 +91,9 @@ std::vector<std::string> check_all(const Manifest& m, const Target& target, cons
     if (auto [it, fresh] = seen_entry.emplace(key, &row); !fresh)
       problems.push_back(row.where + ": duplicate: parameters (" + values_text(m, row.values) + ") with realisation " +
                          std::to_string(row.realisation) + " are already given at " + it->second->where);
-    const auto canonical = std::filesystem::weakly_canonical(row.file);
+    std::error_code ec;  // a path that cannot be resolved is compared as written
+    auto canonical = std::filesystem::weakly_canonical(row.file, ec);
+    if (ec) canonical = row.file.lexically_normal();
     if (auto [it, fresh] = seen_file.emplace(canonical, &row); !fresh) {
       const ManifestRow& first = *it->second;
       if (first.values != row.values)

@@ -30,7 +30,7 @@ struct PlanArgs {
   bool probe = false;
 };
 
-std::string fmt(double v, int precision = 3) {
+[[maybe_unused]] std::string fmt(double v, int precision = 3) {
   std::ostringstream os;
   os.precision(precision);
   os << v;

@@ -116,7 +116,11 @@ fi
 [ "$phase" = chain ] || fail "unknown phase '$phase'"
 # A campaign that outlasts one 1-minute job: the tiny campaign with its wall time
 # cut by a signal lead of 40 s, so the first job stops after ~20 s of work.
-cp "$source_dir/jobs/tiny/campaign.toml" campaign.toml || fail "no jobs/tiny/campaign.toml"
+# The tiny campaign runs ~9 entries/s on 2 ranks: 200 training points make the work
+# outlast the ~20 s of work per job, so several jobs of the chain are needed.
+sed 's/^points = 6$/points = 200/' "$source_dir/jobs/tiny/campaign.toml" > campaign.toml \
+  || fail "no jobs/tiny/campaign.toml"
+grep -q '^points = 200$' campaign.toml || fail "could not enlarge the tiny campaign's training design"
 ranks=$cpus
 "$spinflip" jobscript campaign.toml --walltime 00:01:00 --signal-lead-seconds 40 --chain 8 \
     --ranks-per-node "$ranks" --output jobs -o "$work/slurm.h5" >/dev/null || fail "jobscript refused"

@@ -39,6 +39,9 @@ void run_covariance(const CovarianceOptions& o) {
       intensity = lw.intensity;
     }
     const double cond = condition_number(cov);
+    if (cond > 1e8)
+      log::warn("selection '{}': condition number {:.3g}; some coefficients are nearly redundant (e.g. P and delta2 "
+                "of the same bins: select one with quantity=…)", sel.name, cond);
     // The Hartlap factor de-biases the inverse of a plain sample covariance
     // only; a shrunk estimate is not Wishart, so no factor is applied to it.
     const double hartlap = o.shrink ? 1.0 : hartlap_factor(n, p);

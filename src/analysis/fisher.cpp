@@ -179,6 +179,9 @@ FisherModel fisher_model(const Catalogue& cat, const Selection& sel_in, const St
     m.mean = m.fiducial.colwise().mean().transpose();
     std::tie(m.cov, m.hartlap) = external_covariance(cat, m.selection, m.transform.describe(), covariance_file);
   }
+  if (const double cond = condition_number(m.cov); cond > 1e8)
+    log::warn("{}: covariance condition number {:.3g}; some coefficients are nearly redundant (e.g. P and delta2 of "
+              "the same bins: select one with quantity=…)", what, cond);
   m.precision = m.hartlap * spd_inverse(m.cov, "the covariance of " + what);
   m.derivatives.resize(static_cast<Eigen::Index>(d), static_cast<Eigen::Index>(st.params.size()));
   for (std::size_t j = 0; j < st.params.size(); ++j) {

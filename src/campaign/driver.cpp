@@ -674,6 +674,8 @@ RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
                 "the same command again to continue",
                 any_sig ? " on " : " after --max-entries", any_sig == SIGTERM ? "SIGTERM" : any_sig ? "SIGUSR1" : "",
                 r.ran, r.done, r.failed, r.pending);
+    if (r.stopped_early && any_abandoned)
+      log::info("entries in progress at the signal were abandoned and stay pending");
     else
       log::info("finished: {} entries run, {} done, {} failed, {} pending of {}", r.ran, r.done, r.failed, r.pending,
                 r.total);

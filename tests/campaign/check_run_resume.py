@@ -97,21 +97,28 @@ with tempfile.TemporaryDirectory() as tmp:
     check(not compare(ref, part), "refused catalogue unchanged")
 
     # 3. SIGUSR1 to mpiexec: every rank finishes its entry, exit 0, resumable.
+    #    jobs/tiny with more realisations and a short progress interval, so the
+    #    signal surely lands while entries remain.
+    longer = os.path.join(tmp, "longer.toml")
+    text = open(TINY).read().replace("progress_interval_s = 2", "progress_interval_s = 0.2")
+    text = text.replace('kind = "fiducial"\nrealisations = 4', 'kind = "fiducial"\nrealisations = 40')
+    check("realisations = 40" in text and "progress_interval_s = 0.2" in text, "longer tiny campaign made")
+    open(longer, "w").write(text)
     usr = os.path.join(tmp, "usr1.h5")
-    proc = subprocess.Popen(command(["run", TINY, "-o", usr], ranks=2), stderr=subprocess.PIPE, text=True)
+    proc = subprocess.Popen(command(["run", longer, "-o", usr], ranks=2), stderr=subprocess.PIPE, text=True)
     started = wait_done(usr, 1, proc)
-    check(started, "tiny run got going")
+    check(started, "longer tiny run got going")
     proc.send_signal(signal.SIGUSR1)
     _, err = proc.communicate(timeout=120)
     check(proc.returncode == 0 and "stopped early on SIGUSR1" in err and "resumable" in err,
           f"SIGUSR1: exit 0, says it stopped and is resumable ({proc.returncode}: {err[-1500:]})")
     n_done = consistent(usr, "SIGUSR1")
-    check(0 < n_done < 18, f"SIGUSR1 stopped the run part way ({n_done} of 18 done)")
+    check(0 < n_done < 54, f"SIGUSR1 stopped the run part way ({n_done} of 54 done)")
     check(spinflip("status", usr, "--require-complete").returncode == 3, "status exits 3 after SIGUSR1")
-    p = spinflip("run", TINY, "-o", usr)
+    p = spinflip("run", longer, "-o", usr)
     check(p.returncode == 0 and "finished" in p.stderr, f"resume after SIGUSR1 ({p.stderr[-800:]})")
     tiny_ref = os.path.join(tmp, "tiny_ref.h5")
-    p = spinflip("run", TINY, "-o", tiny_ref, ranks=2)
+    p = spinflip("run", longer, "-o", tiny_ref, ranks=2)
     diff = compare(tiny_ref, usr)
     check(not diff, f"SIGUSR1 + resume = uninterrupted: {diff}")
 

@@ -16,12 +16,26 @@
 
 namespace spinflip::ingest::test {
 
+/// Removes the scratch directories this process made when it exits.
+struct ScratchRegistry {
+  std::vector<std::filesystem::path> dirs;
+  ~ScratchRegistry() {
+    std::error_code ec;
+    for (auto& d : dirs) std::filesystem::remove_all(d, ec);
+  }
+};
+inline ScratchRegistry& scratch_registry() {
+  static ScratchRegistry r;
+  return r;
+}
+
 /// A fresh directory per test (and per process, so MPI ranks do not collide).
 inline std::filesystem::path scratch(const std::string& name) {
   auto d = std::filesystem::temp_directory_path() /
            ("spinflip-ingest-" + std::to_string(::getpid()) + "-" + name);
   std::filesystem::remove_all(d);
   std::filesystem::create_directories(d);
+  scratch_registry().dirs.push_back(d);
   return d;
 }
 

@@ -131,15 +131,29 @@ with tempfile.TemporaryDirectory() as tmp:
     check(proc.returncode == 0 and "stopped early on SIGTERM" in err, f"SIGTERM: exit 0 ({proc.returncode}: {err[-800:]})")
     consistent(term, "SIGTERM")
 
-    # 5. kill -9 of one rank at random moments, ten times over, then a last run.
+    # 5. kill -9 of one rank at random moments, ten times over, then a last run:
+    #    small.toml with 200 fiducial realisations, each kill landing a random
+    #    0-1 s after that run's first entries are done.
+    many = os.path.join(tmp, "many.toml")
+    text = open(SMALL).read().replace("realisations = 12", "realisations = 200")
+    text = text.replace("progress_interval_s = 0.5", "progress_interval_s = 0.1")
+    check("realisations = 200" in text, "kill campaign made")
+    open(many, "w").write(text)
+    many_ref = os.path.join(tmp, "many_ref.h5")
+    p = spinflip("run", many, "-o", many_ref, ranks=2)
+    check(p.returncode == 0, f"kill campaign reference run ({p.stderr[-800:]})")
     rng = random.Random(20261202)
     killed = os.path.join(tmp, "killed.h5")
     kills = 0
     for i in range(10):
-        proc = subprocess.Popen(command(["run", SMALL, "-o", killed], ranks=2), stdout=subprocess.DEVNULL,
+        if os.path.exists(killed + ".progress.json"):
+            os.remove(killed + ".progress.json")
+        proc = subprocess.Popen(command(["run", many, "-o", killed], ranks=2), stdout=subprocess.DEVNULL,
                                 stderr=subprocess.PIPE, text=True)
-        time.sleep(rng.uniform(0.2, 3.0))
+        got_going = wait_done(killed, 1, proc)
+        time.sleep(rng.uniform(0.0, 1.0))
         ranks = children(proc.pid)
+        print(f"kill {i}: run going {got_going}, alive {proc.poll() is None}, ranks {ranks}", flush=True)
         if ranks and proc.poll() is None:
             victim = rng.choice(ranks)
             try:
@@ -155,9 +169,10 @@ with tempfile.TemporaryDirectory() as tmp:
         if os.path.exists(killed):
             consistent(killed, f"kill {i}")
     check(kills >= 5, f"at least 5 of 10 kills hit a running rank ({kills})")
-    p = spinflip("run", SMALL, "-o", killed, ranks=2)
+    p = spinflip("run", many, "-o", killed, ranks=2)
     check(p.returncode == 0 and "finished" in p.stderr, f"final resume after kills ({p.stderr[-800:]})")
-    diff = compare(ref, killed)
+    diff = compare(many_ref, killed)
     check(not diff, f"{kills} kill -9 + resume = uninterrupted: {diff}")
+    print(f"{kills} kills hit a running rank", flush=True)
 
 check.finish()

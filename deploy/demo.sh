@@ -1,18 +1,55 @@
 #!/usr/bin/env bash
-# README's main command: install what is missing, build, and run what spinflip
-# can do today on the built-in demo campaign (jobs/demo/campaign.toml).
-# Output goes to ./demo-out (override with SPINFLIP_DEMO_OUT).
+# README's main command: install what is missing, build, and run the built-in
+# demo campaign (jobs/demo/campaign.toml, an invented scenario) end to end:
+# plan → run under mpiexec → status → one cone with its preview → covariance →
+# Fisher forecasts compared across statistics and instruments → training set.
+# Output goes to ./demo-out (override with SPINFLIP_DEMO_OUT); ranks default to
+# the machine's cores (SPINFLIP_DEMO_RANKS). Running it again resumes the
+# catalogue instead of starting over.
 set -euo pipefail
 here=$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)
 "$here/deploy/install-debian.sh"
 export OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1
 spinflip="${SPINFLIP_BUILD_DIR:-$here/build}/src/cli/spinflip"
+campaign="$here/jobs/demo/campaign.toml"
 out=${SPINFLIP_DEMO_OUT:-$PWD/demo-out}
+ranks=${SPINFLIP_DEMO_RANKS:-$(nproc)}
 mkdir -p "$out"
+cd "$out"
+step() { echo; echo "== $*"; }
+
 "$spinflip" --version
-echo "== configuration reference (every key, default, unit) -> $out/config-reference.md"
-"$spinflip" config --markdown > "$out/config-reference.md"
-"$spinflip" config --list
-echo "== a Slurm job chain for the demo campaign -> $out/jobs"
-"$spinflip" jobscript "$here/jobs/demo/campaign.toml" --walltime 01:00:00 --chain 4 --output "$out/jobs"
-echo "demo finished: see $out"
+step "validate the campaign: designs, entries, memory per rank"
+"$spinflip" plan "$campaign" --points-csv "$out/points.csv"
+
+step "run it on $ranks ranks (resumable: interrupt and run again to continue) -> $out/demo.h5"
+mpiexec --oversubscribe -n "$ranks" "$spinflip" run "$campaign" -o "$out/demo.h5"
+"$spinflip" status "$out/demo.h5" --require-complete
+
+step "one light cone of the fiducial point, clean and observed, with its preview -> $out/cone.png"
+fiducial=$(awk -F, 'NR > 1 && $3 == "fiducial" { print $1; exit }' "$out/points.csv")
+"$spinflip" cone "$campaign" --point "${fiducial:-0}" --realisation 0 --fields x_hi \
+    --scenario deep --scenario shallow -o "$out/cone.h5" --preview "$out/cone.png"
+
+step "covariance of the fiducial realisations -> $out/covariance.h5 and its picture"
+"$spinflip" covariance "$out/demo.h5" -o "$out/covariance.h5" \
+    --select 'name=P(k) deep;kernel=power;scenario=deep' \
+    --select 'name=scattering deep;kernel=scattering;scenario=deep'
+
+step "Fisher forecasts: which statistic and which instrument constrain the sources best"
+"$spinflip" fisher "$out/demo.h5" -o "$out/fisher.h5" --combined \
+    --select 'name=P(k) perfect;kernel=power;scenario=perfect' \
+    --select 'name=P(k) deep;kernel=power;scenario=deep' \
+    --select 'name=scattering deep;kernel=scattering;scenario=deep' \
+    --select 'name=P(k)+scattering deep;kernel=power,scattering;scenario=deep' \
+    --select 'name=P(k)+scattering shallow;kernel=power,scattering;scenario=shallow'
+
+step "training set for an emulator (split by design point) -> $out/train.h5"
+"$spinflip" export "$out/demo.h5" -o "$out/train.h5" --select 'name=deep;kernel=power,scattering;scenario=deep'
+
+step "a Slurm job chain for the same campaign -> $out/jobs"
+"$spinflip" jobscript "$campaign" --walltime 01:00:00 --chain 4 --output "$out/jobs" -o "$out/demo.h5"
+
+echo
+echo "demo finished. Pictures: $(ls "$out"/*.png 2>/dev/null | tr '\n' ' ')"
+echo "Catalogue: $out/demo.h5 (read it with python/spinflip_catalogue or h5py; layout in docs/catalogue.md)"

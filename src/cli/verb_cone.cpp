@@ -3,10 +3,13 @@
 // with its z / frequency / distance axes and global histories, for inspection.
 // Under mpirun the world generates it together (FFTW-MPI slabs); rank 0 writes.
 #ifdef SPINFLIP_HAVE_DRIVER
+#include <algorithm>
+#include <cmath>
 #include <filesystem>
 #include <memory>
 #include <sstream>
 
+#include "analysis/internal.hpp"  // run_plot: the python/plots runner the analysis verbs use
 #include "campaign/campaign.hpp"
 #include "catalogue/hdf5.hpp"
 #include "cli/verbs.hpp"
@@ -25,6 +28,7 @@ struct ConeArgs {
   std::string campaign_file, output;
   long long point = -1, realisation = 0;
   std::vector<std::string> fields, scenarios;
+  std::string preview;
 };
 
 void write(hid_t parent, const std::string& name, hid_t type, const std::vector<hsize_t>& dims, const void* data) {
@@ -101,11 +105,22 @@ int run_cone(const ConeArgs& a) {
   for (const auto& [name, field] : extra) write_cube(file, name, field);
   if (!a.scenarios.empty()) {
     h5::Handle obs = h5::group(SPINFLIP_H5_ID(H5Gcreate2(file, "observed", H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT)));
+    h5::Handle uv_group;
     for (auto& s : instrument::scenarios_from(cfg, cosmology, geo)) {
       if (std::find(a.scenarios.begin(), a.scenarios.end(), s.name()) == a.scenarios.end()) continue;
       core::Array3<float> observed = tb;
       s.apply(observed, geo, key);
       write_cube(obs, s.name(), observed);
+      // Observing time per uv cell at the middle of the band (what sets the resolution).
+      const std::size_t mid = geo.shape[2] / 2;
+      const core::Array2<float> t = s.uv_time_s(mid);
+      if (std::all_of(t.data.begin(), t.data.end(), [](float v) { return std::isfinite(v); })) {
+        if (!uv_group) {
+          uv_group = h5::group(SPINFLIP_H5_ID(H5Gcreate2(file, "uv", H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT)));
+          h5::write_attribute(uv_group, "freq_MHz", geo.freq_MHz[mid]);
+        }
+        write(uv_group, s.name(), H5T_NATIVE_FLOAT, {t.shape[0], t.shape[1]}, t.data.data());
+      }
     }
   }
   h5::write_attribute(file, "campaign_sha256", c.sha256());
@@ -123,6 +138,8 @@ int run_cone(const ConeArgs& a) {
   file.close();
   log::info("cone: point {} realisation {} ({}×{}×{} cells, z {:.3f}–{:.3f}) written to {}", a.point, a.realisation,
             tb.shape[0], tb.shape[1], tb.shape[2], cone.z.front(), cone.z.back(), a.output);
+  if (!a.preview.empty() && analysis::detail::run_plot("plot_cone.py", {a.output, a.preview}))
+    log::info("cone: preview written to {}", a.preview);
   return 0;
 }
 
@@ -137,6 +154,8 @@ RegisterVerb cone_verb("cone", "one light cone of a campaign (point, realisation
                          sub.add_option("--fields", a->fields, "also write: density, x_hi, z_ion")->delimiter(',');
                          sub.add_option("--scenario", a->scenarios,
                                         "also write the cone as this scenario observes it (repeatable)");
+                         sub.add_option("--preview", a->preview,
+                                        "PNG picture: transverse slice, line-of-sight cut, histories, uv coverage");
                          return [a]() { return run_cone(*a); };
                        });
 

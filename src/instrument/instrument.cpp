@@ -14,6 +14,7 @@
 #include <limits>
 #include <memory>
 #include <filesystem>
+#include <mutex>
 
 #include "core/errors.hpp"
 
@@ -234,12 +235,13 @@ Scenario::Scenario(Settings settings, std::uint32_t index, std::vector<std::vect
     uv_time_.resize(cells * n_los_);
     for (std::size_t k = 0; k < n_los_; ++k) {
       if (uv_time_s[k].size() != cells) throw InternalError("instrument: uv coverage has the wrong grid size");
-      for (std::size_t q = 0; q < cells; ++q) uv_time_[q * n_los_ + k] = uv_time_s[k][q];
+      for (std::size_t q = 0; q < cells; ++q) uv_time_[k * cells + q] = uv_time_s[k][q];
     }
   }
   const auto bw = cell_bandwidth_Hz(g);
   const double area = std::numbers::pi * 0.25 * settings_.station_diameter_m * settings_.station_diameter_m;
   sigma_unit_.resize(n_los_);
+  sigma_unit_f_.resize(n_los_);
   for (std::size_t k = 0; k < n_los_; ++k) {
     // docs/instrument.md eq. (N3): σ of Re/Im of the pixel-sum DFT of one uv cell,
     // times sqrt(t): 1e3 T_sys λ² / (A_e θ_pix² sqrt(2 Δν)).
@@ -247,116 +249,192 @@ Scenario::Scenario(Settings settings, std::uint32_t index, std::vector<std::vect
     const double theta_pix = g.cell_mpc / g.distance_mpc[k];
     sigma_unit_[k] = 1e3 * system_temperature_K(settings_.receiver_temperature_K, g.freq_MHz[k]) * lambda * lambda /
                      (area * theta_pix * theta_pix * std::sqrt(2.0 * bw[k]));
+    sigma_unit_f_[k] = static_cast<float>(sigma_unit_[k]);
   }
 }
 
 core::Array2<float> Scenario::uv_time_s(std::size_t k) const {
   core::Array2<float> out(n_perp_, n_perp_, std::numeric_limits<float>::infinity());
   if (!uv_time_.empty())
-    for (std::size_t q = 0; q < n_perp_ * n_perp_; ++q) out.data[q] = uv_time_[q * n_los_ + k];
+    for (std::size_t q = 0; q < n_perp_ * n_perp_; ++q) out.data[q] = uv_time_[k * n_perp_ * n_perp_ + q];
   return out;
 }
 
 double Scenario::noise_sigma_mK(std::size_t k, double t) const { return sigma_unit_[k] / std::sqrt(t); }
 
+namespace {
+// Plans for one cone shape, made once (FFTW_ESTIMATE, so results do not depend on
+// timing) and run with the new-array execute functions on fresh buffers of the
+// same alignment. The work buffer is LOS-major, [k][i][j] with rows padded to
+// 2(N/2+1) floats, so the transverse transforms are contiguous batched 2D
+// transforms and the LOS transforms are strided batches with a unit-stride
+// vector loop, which FFTW vectorises.
+struct ApplyPlans {
+  Plan fwd, inv;
+  // (chunk length, alignment of its start) -> (forward, backward)
+  std::map<std::pair<std::size_t, int>, std::pair<Plan, Plan>> los;
+};
+
+std::mutex& plan_mutex() {
+  static std::mutex m;
+  return m;
+}
+
+const ApplyPlans& apply_plans(std::size_t N, std::size_t L, std::size_t chunk, float* buf) {
+  using Key = std::array<std::size_t, 4>;
+  static std::map<Key, std::unique_ptr<ApplyPlans>> cache;
+  const std::size_t H = N / 2 + 1;
+  const Key key{N, L, chunk, static_cast<std::size_t>(fftwf_alignment_of(buf))};
+  std::lock_guard<std::mutex> lock(plan_mutex());
+  if (auto it = cache.find(key); it != cache.end()) return *it->second;
+  const int n[2] = {static_cast<int>(N), static_cast<int>(N)};
+  const int l = static_cast<int>(L), plane_r = static_cast<int>(2 * N * H), plane_c = static_cast<int>(N * H);
+  const int embed_r[2] = {n[0], static_cast<int>(2 * H)}, embed_c[2] = {n[0], static_cast<int>(H)};
+  auto* c = reinterpret_cast<fftwf_complex*>(buf);
+  auto p = std::make_unique<ApplyPlans>(ApplyPlans{
+      Plan(fftwf_plan_many_dft_r2c(2, n, l, buf, embed_r, 1, plane_r, c, embed_c, 1, plane_c, FFTW_ESTIMATE)),
+      Plan(fftwf_plan_many_dft_c2r(2, n, l, c, embed_c, 1, plane_c, buf, embed_r, 1, plane_r, FFTW_ESTIMATE)),
+      {}});
+  if (chunk > 0)
+    for (std::size_t a = 0; a < L; a += chunk) {
+      const int len = static_cast<int>(std::min(chunk, L - a));
+      fftwf_complex* at = c + a * N * H;
+      const std::pair<std::size_t, int> lk{static_cast<std::size_t>(len), fftwf_alignment_of(reinterpret_cast<float*>(at))};
+      if (p->los.count(lk)) continue;
+      p->los.emplace(lk, std::pair<Plan, Plan>(Plan(fftwf_plan_many_dft(1, &len, plane_c, at, nullptr, plane_c, 1, at,
+                                                                     nullptr, plane_c, 1, FFTW_FORWARD, FFTW_ESTIMATE)),
+                                             Plan(fftwf_plan_many_dft(1, &len, plane_c, at, nullptr, plane_c, 1, at,
+                                                                     nullptr, plane_c, 1, FFTW_BACKWARD, FFTW_ESTIMATE))));
+    }
+  return *cache.emplace(key, std::move(p)).first->second;
+}
+
+constexpr std::size_t tile = 32;
+
+// cone [i][j][k] -> buf [k][i][j] (rows of `row` floats), in tiles that stay in cache.
+void to_los_major(const float* cone, float* buf, std::size_t N, std::size_t L, std::size_t row) {
+  const std::size_t P = N * N;
+  for (std::size_t q0 = 0; q0 < P; q0 += tile)
+    for (std::size_t k0 = 0; k0 < L; k0 += tile) {
+      const std::size_t q1 = std::min(P, q0 + tile), k1 = std::min(L, k0 + tile);
+      for (std::size_t k = k0; k < k1; ++k) {
+        float* dst = buf + k * N * row;
+        for (std::size_t q = q0; q < q1; ++q) dst[(q / N) * row + q % N] = cone[q * L + k];
+      }
+    }
+}
+
+void from_los_major(const float* buf, float* cone, std::size_t N, std::size_t L, std::size_t row) {
+  const std::size_t P = N * N;
+  for (std::size_t q0 = 0; q0 < P; q0 += tile)
+    for (std::size_t k0 = 0; k0 < L; k0 += tile) {
+      const std::size_t q1 = std::min(P, q0 + tile), k1 = std::min(L, k0 + tile);
+      for (std::size_t q = q0; q < q1; ++q) {
+        const float* src = buf + (q / N) * row + q % N;
+        float* dst = cone + q * L;
+        for (std::size_t k = k0; k < k1; ++k) dst[k] = src[k * N * row];
+      }
+    }
+}
+}  // namespace
+
 void Scenario::apply(core::Array3<float>& cone, const ConeGeometry& g, const rng::EntryKey& key) const {
-  const std::size_t N = n_perp_, L = n_los_, H = N / 2 + 1;
+  const std::size_t N = n_perp_, L = n_los_, H = N / 2 + 1, M = N * H, P = N * N;
   if (cone.shape != g.shape || g.shape[0] != N || g.shape[2] != L)
     throw InternalError("instrument: cone shape does not match the scenario's geometry");
-  std::unique_ptr<fftwf_complex, FftwFree> spec(fftwf_alloc_complex(N * H * L));
-  auto* S = reinterpret_cast<std::complex<float>*>(spec.get());
-  const int n = static_cast<int>(N), l = static_cast<int>(L), h = static_cast<int>(H);
-  // Transverse transforms of every LOS cell at once: layout [i][j_half][k], k contiguous.
-  fftw_iodim dims_r[2] = {{n, n * l, h * l}, {n, l, l}};
-  fftw_iodim how[1] = {{l, 1, 1}};
-  Plan fwd(fftwf_plan_guru_dft_r2c(2, dims_r, 1, how, cone.data.data(), spec.get(), FFTW_ESTIMATE));
-  fwd.run();
+  const std::size_t C = settings_.wedge ? settings_.chunk_cells : 0;
+  std::unique_ptr<float, FftwFree> buffer(fftwf_alloc_real(2 * M * L));
+  if (!buffer) throw InternalError("instrument: out of memory for the transform buffer");
+  float* buf = buffer.get();
+  auto* S = reinterpret_cast<std::complex<float>*>(buf);
+  const ApplyPlans& plans = apply_plans(N, L, C, buf);
 
+  to_los_major(cone.data.data(), buf, N, L, 2 * H);
+  fftwf_execute_dft_r2c(plans.fwd.get(), buf, reinterpret_cast<fftwf_complex*>(buf));
+
+  // One pass over the spectrum: uv mask, noise, and the normalisation of every
+  // inverse transform to come (1/N² transverse, 1/len of the LOS chunk).
+  std::vector<float> scale(L, 1.0f / static_cast<float>(P));
+  if (C > 0)
+    for (std::size_t a = 0; a < L; a += C)
+      for (std::size_t k = a; k < std::min(L, a + C); ++k) scale[k] /= static_cast<float>(std::min(C, L - a));
   const rng::CounterRng rng(key, rng::noise_stream(index_));
-  const float norm = 1.0f / static_cast<float>(N * N);
-  for (std::size_t i = 0; i < N; ++i) {
-    const std::size_t ip = (N - i) % N;
-    for (std::size_t j = 0; j < H; ++j) {
-      const std::size_t jp = (N - j) % N;
-      const std::size_t full = i * N + j, partner = ip * N + jp;
-      std::complex<float>* row = S + (i * H + j) * L;
-      if (full == 0) {  // interferometers do not see the mean
-        std::fill(row, row + L, std::complex<float>(0));
-        continue;
-      }
-      const bool self_conjugate = full == partner;
-      const std::size_t canon = std::min(full, partner);
-      const float* t_row = uv_time_.empty() ? nullptr : uv_time_.data() + full * L;
-      std::array<float, 8> z{};
-      std::size_t z_group = std::numeric_limits<std::size_t>::max();
-      for (std::size_t k = 0; k < L; ++k) {
-        const float t = t_row == nullptr ? std::numeric_limits<float>::infinity() : t_row[k];
-        if (!(t > 0)) { row[k] = 0; continue; }
-        std::complex<float> v = row[k];
-        if (settings_.noise) {
-          // Keyed by the global (group of 4 LOS cells, mode) index of the canonical member
-          // of the Hermitian pair, so ñ(-k) = conj ñ(k) whoever draws it; one Philox call
-          // gives 8 32-bit words, i.e. the normal pairs of LOS cells 4m … 4m+3.
-          if (k / 4 != z_group) {
-            z_group = k / 4;
-            const auto b = rng.bits(static_cast<std::uint64_t>(k / 4) * N * N + canon);
-            for (std::size_t w = 0; w < 4; ++w) {
-              const auto r = r123::boxmuller(static_cast<std::uint32_t>(b[w]), static_cast<std::uint32_t>(b[w] >> 32));
-              z[2 * w] = r.x;
-              z[2 * w + 1] = r.y;
-            }
-          }
-          const float* zk = z.data() + 2 * (k % 4);
-          const double sig = noise_sigma_mK(k, t);
-          std::complex<float> nz;
-          if (self_conjugate) nz = {static_cast<float>(std::sqrt(2.0) * sig * zk[0]), 0.0f};
-          else nz = {static_cast<float>(sig * zk[0]), static_cast<float>(sig * zk[1] * (full == canon ? 1 : -1))};
-          v += nz;
+  const bool noise = settings_.noise && !uv_time_.empty();
+  const float sqrt2 = std::sqrt(2.0f);
+  for (std::size_t k0 = 0; k0 < L; k0 += 4) {
+    // Noise is keyed by the global (group of 4 LOS cells, mode) index of the canonical
+    // member of the Hermitian pair, so ñ(-k) = conj ñ(k) whoever draws it; one Philox
+    // call gives 8 32-bit words, i.e. the normal pairs of LOS cells 4m … 4m+3.
+    const std::size_t k1 = std::min(L, k0 + 4);
+    const std::uint64_t group_base = static_cast<std::uint64_t>(k0 / 4) * P;
+    for (std::size_t i = 0; i < N; ++i) {
+      const std::size_t ip = (N - i) % N;
+      for (std::size_t j = 0; j < H; ++j) {
+        const std::size_t full = i * N + j, partner = ip * N + (N - j) % N, mode = i * H + j;
+        if (full == 0) {  // interferometers do not see the mean
+          for (std::size_t k = k0; k < k1; ++k) S[k * M] = 0;
+          continue;
         }
-        row[k] = v * norm;
+        if (uv_time_.empty()) {
+          for (std::size_t k = k0; k < k1; ++k) S[k * M + mode] *= scale[k];
+          continue;
+        }
+        const bool self_conjugate = full == partner;
+        const std::size_t canon = std::min(full, partner);
+        const float im_sign = full == canon ? 1.0f : -1.0f;
+        std::array<float, 8> z{};
+        bool drawn = false;
+        for (std::size_t k = k0; k < k1; ++k) {
+          const float t = uv_time_[k * P + full];
+          std::complex<float>& v = S[k * M + mode];
+          if (!(t > 0)) { v = 0; continue; }  // unobserved: no RNG either
+          if (noise) {
+            if (!drawn) {
+              drawn = true;
+              const auto b = rng.bits(group_base + canon);
+              for (std::size_t w = 0; w < 4; ++w) {
+                const auto r = r123::boxmuller(static_cast<std::uint32_t>(b[w]), static_cast<std::uint32_t>(b[w] >> 32));
+                z[2 * w] = r.x;
+                z[2 * w + 1] = r.y;
+              }
+            }
+            const float* zk = z.data() + 2 * (k % 4);
+            const float sig = sigma_unit_f_[k] / std::sqrt(t);
+            v += self_conjugate ? std::complex<float>(sqrt2 * sig * zk[0], 0.0f)
+                                : std::complex<float>(sig * zk[0], im_sign * sig * zk[1]);
+          }
+          v *= scale[k];
+        }
       }
     }
   }
 
-  if (settings_.wedge) {
-    const std::size_t C = settings_.chunk_cells;
+  if (C > 0) {
     const double dk_perp = 2.0 * std::numbers::pi / (static_cast<double>(N) * g.cell_mpc);
-    std::map<std::size_t, std::pair<Plan, Plan>> plans;
+    std::vector<double> kperp(M);
+    for (std::size_t i = 0; i < N; ++i)
+      for (std::size_t j = 0; j < H; ++j)
+        kperp[i * H + j] = dk_perp * std::hypot(static_cast<double>(core::fft_index(i, N)),
+                                                static_cast<double>(core::fft_index(j, N)));
     for (std::size_t a = 0; a < L; a += C) {
       const std::size_t len = std::min(C, L - a);
-      auto it = plans.find(len);
-      if (it == plans.end()) {
-        fftw_iodim d[1] = {{static_cast<int>(len), 1, 1}};
-        fftw_iodim hw[1] = {{static_cast<int>(N * H), l, l}};
-        fftwf_complex* p = spec.get() + a;
-        it = plans.emplace(len, std::pair<Plan, Plan>(
-                                    Plan(fftwf_plan_guru_dft(1, d, 1, hw, p, p, FFTW_FORWARD, FFTW_ESTIMATE)),
-                                    Plan(fftwf_plan_guru_dft(1, d, 1, hw, p, p, FFTW_BACKWARD, FFTW_ESTIMATE))))
-                 .first;
-      }
-      fftwf_complex* p = spec.get() + a;
-      fftwf_execute_dft(it->second.first.get(), p, p);
+      auto* p = reinterpret_cast<fftwf_complex*>(S + a * M);
+      const auto& [fwd, bwd] = plans.los.at({len, fftwf_alignment_of(reinterpret_cast<float*>(p))});
+      fftwf_execute_dft(fwd.get(), p, p);
       const double slope = slopes_[a + len / 2];
       const double dk_par = 2.0 * std::numbers::pi / (static_cast<double>(len) * g.cell_mpc);
-      const float inv_len = 1.0f / static_cast<float>(len);
-      for (std::size_t i = 0; i < N; ++i)
-        for (std::size_t j = 0; j < H; ++j) {
-          const double kperp = dk_perp * std::hypot(static_cast<double>(core::fft_index(i, N)),
-                                                    static_cast<double>(core::fft_index(j, N)));
-          const double limit = slope * kperp + settings_.wedge_buffer_per_mpc;
-          std::complex<float>* row = S + (i * H + j) * L + a;
-          for (std::size_t m = 0; m < len; ++m) {
-            const double kpar = dk_par * std::abs(static_cast<double>(core::fft_index(m, len)));
-            row[m] = kpar < limit ? std::complex<float>(0) : row[m] * inv_len;
-          }
-        }
-      fftwf_execute_dft(it->second.second.get(), p, p);
+      for (std::size_t m = 0; m < len; ++m) {
+        const double kpar = dk_par * std::abs(static_cast<double>(core::fft_index(m, len)));
+        std::complex<float>* plane = S + (a + m) * M;
+        for (std::size_t q = 0; q < M; ++q)
+          if (kpar < slope * kperp[q] + settings_.wedge_buffer_per_mpc) plane[q] = 0;
+      }
+      fftwf_execute_dft(bwd.get(), p, p);
     }
   }
 
-  fftw_iodim dims_c[2] = {{n, h * l, n * l}, {n, l, l}};
-  Plan inv(fftwf_plan_guru_dft_c2r(2, dims_c, 1, how, spec.get(), cone.data.data(), FFTW_ESTIMATE));
-  inv.run();
+  fftwf_execute_dft_c2r(plans.inv.get(), reinterpret_cast<fftwf_complex*>(buf), buf);
+  from_los_major(buf, cone.data.data(), N, L, 2 * H);
 }
 
 // ---------------------------------------------------------------- from config

@@ -81,8 +81,9 @@ class Scenario {
   Settings settings_;
   std::uint32_t index_;
   std::size_t n_perp_, n_los_;
-  std::vector<float> uv_time_;  // [uv cell][LOS cell]: the apply loop runs along the LOS
+  std::vector<float> uv_time_;  // [LOS cell][uv cell]: apply works on LOS-major planes
   std::vector<double> slopes_, sigma_unit_;  // sigma_unit_: σ·sqrt(t) per LOS cell
+  std::vector<float> sigma_unit_f_;          // the same in float for the noise loop
 };
 
 /// Build every [scenarios.*] of the campaign in file order (uv gridding happens here, once).

@@ -15,8 +15,7 @@ double wavenumber(std::size_t i, std::size_t n, double cell_mpc) {
          (static_cast<double>(n) * cell_mpc);
 }
 
-void draw_linear_density(fft::SlabField& field, double cell_mpc, const cosmo::Cosmology& c,
-                         const rng::EntryKey& key) {
+void draw_white_noise(fft::SlabField& field, const rng::EntryKey& key) {
   const auto& n = field.global_shape();
   const std::size_t n0 = field.local_n0(), start = field.local_start0(), pad = field.padded_n2();
   const rng::CounterRng rng(key, rng::Stream::initial_conditions);
@@ -39,6 +38,13 @@ void draw_linear_density(fft::SlabField& field, double cell_mpc, const cosmo::Co
       }
       if (k < n[2]) line[k] = static_cast<float>(rng.normal_pair((row + k) / 2)[0]);
     }
+}
+
+void draw_linear_density(fft::SlabField& field, double cell_mpc, const cosmo::Cosmology& c,
+                         const rng::EntryKey& key) {
+  const auto& n = field.global_shape();
+  const std::size_t n0 = field.local_n0(), start = field.local_start0();
+  draw_white_noise(field, key);
   field.forward();
 
   // Colour: √(P/ΔV) and the 1/N of the inverse. P from a fine log-log table (error ≲ 1e-6).

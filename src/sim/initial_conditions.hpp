@@ -7,6 +7,9 @@ namespace spinflip::cosmo { class Cosmology; }
 
 namespace spinflip::sim::detail {
 
+/// Unit white noise in real space, cell g of the global box taking normal number
+/// g mod 2 of counter pair g/2: the same bits whatever the slab decomposition.
+void draw_white_noise(fft::SlabField& field, const rng::EntryKey& key);
 /// Fill `field` with the linear density contrast at z = 0, left in Fourier space
 /// and scaled so that field.inverse() yields δ(x) directly (1/N folded in).
 /// White noise is drawn in real space by global cell index (so the field does

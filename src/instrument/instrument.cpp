@@ -15,6 +15,7 @@
 #include <memory>
 #include <filesystem>
 #include <mutex>
+#include <tuple>
 
 #include "core/errors.hpp"
 
@@ -269,10 +270,13 @@ namespace {
 // 2(N/2+1) floats, so the transverse transforms are contiguous batched 2D
 // transforms and the LOS transforms are strided batches with a unit-stride
 // vector loop, which FFTW vectorises.
+constexpr std::size_t los_block = 32;
+
 struct ApplyPlans {
   Plan fwd, inv;
-  // (chunk length, alignment of its start) -> (forward, backward)
-  std::map<std::pair<std::size_t, int>, std::pair<Plan, Plan>> los;
+  // (chunk length, modes in the batch, alignment of its start) -> (forward, backward)
+  using LosKey = std::tuple<std::size_t, std::size_t, int>;
+  std::map<LosKey, std::pair<Plan, Plan>> los;
 };
 
 std::mutex& plan_mutex() {
@@ -283,6 +287,7 @@ std::mutex& plan_mutex() {
 const ApplyPlans& apply_plans(std::size_t N, std::size_t L, std::size_t chunk, float* buf) {
   using Key = std::array<std::size_t, 4>;
   static std::map<Key, std::unique_ptr<ApplyPlans>> cache;
+  using LosKey = ApplyPlans::LosKey;
   const std::size_t H = N / 2 + 1;
   const Key key{N, L, chunk, static_cast<std::size_t>(fftwf_alignment_of(buf))};
   std::lock_guard<std::mutex> lock(plan_mutex());
@@ -295,16 +300,23 @@ const ApplyPlans& apply_plans(std::size_t N, std::size_t L, std::size_t chunk, f
       Plan(fftwf_plan_many_dft_r2c(2, n, l, buf, embed_r, 1, plane_r, c, embed_c, 1, plane_c, FFTW_ESTIMATE)),
       Plan(fftwf_plan_many_dft_c2r(2, n, l, c, embed_c, 1, plane_c, buf, embed_r, 1, plane_r, FFTW_ESTIMATE)),
       {}});
+  // LOS transforms run on blocks of los_block modes, so one block's chunk stays in
+  // cache through forward, wedge cut and backward. Plans for both 8-byte offsets.
+  const std::size_t M = N * H;
   if (chunk > 0)
     for (std::size_t a = 0; a < L; a += chunk) {
       const int len = static_cast<int>(std::min(chunk, L - a));
-      fftwf_complex* at = c + a * N * H;
-      const std::pair<std::size_t, int> lk{static_cast<std::size_t>(len), fftwf_alignment_of(reinterpret_cast<float*>(at))};
-      if (p->los.count(lk)) continue;
-      p->los.emplace(lk, std::pair<Plan, Plan>(Plan(fftwf_plan_many_dft(1, &len, plane_c, at, nullptr, plane_c, 1, at,
-                                                                     nullptr, plane_c, 1, FFTW_FORWARD, FFTW_ESTIMATE)),
-                                             Plan(fftwf_plan_many_dft(1, &len, plane_c, at, nullptr, plane_c, 1, at,
-                                                                     nullptr, plane_c, 1, FFTW_BACKWARD, FFTW_ESTIMATE))));
+      for (const std::size_t many : {std::min(los_block, M), M % los_block})
+        for (fftwf_complex* at : {c, c + 1}) {
+          if (many == 0) continue;
+          const LosKey lk{static_cast<std::size_t>(len), many, fftwf_alignment_of(reinterpret_cast<float*>(at))};
+          if (p->los.count(lk)) continue;
+          const int hm = static_cast<int>(many);
+          p->los.emplace(lk, std::pair<Plan, Plan>(Plan(fftwf_plan_many_dft(1, &len, hm, at, nullptr, plane_c, 1, at,
+                                                                         nullptr, plane_c, 1, FFTW_FORWARD, FFTW_ESTIMATE)),
+                                                 Plan(fftwf_plan_many_dft(1, &len, hm, at, nullptr, plane_c, 1, at,
+                                                                         nullptr, plane_c, 1, FFTW_BACKWARD, FFTW_ESTIMATE))));
+        }
     }
   return *cache.emplace(key, std::move(p)).first->second;
 }
@@ -426,18 +438,21 @@ void Scenario::apply(core::Array3<float>& cone, const ConeGeometry& g, const rng
                                                 static_cast<double>(core::fft_index(j, N)));
     for (std::size_t a = 0; a < L; a += C) {
       const std::size_t len = std::min(C, L - a);
-      auto* p = reinterpret_cast<fftwf_complex*>(S + a * M);
-      const auto& [fwd, bwd] = plans.los.at({len, fftwf_alignment_of(reinterpret_cast<float*>(p))});
-      fftwf_execute_dft(fwd.get(), p, p);
       const double slope = slopes_[a + len / 2];
       const double dk_par = 2.0 * std::numbers::pi / (static_cast<double>(len) * g.cell_mpc);
-      for (std::size_t m = 0; m < len; ++m) {
-        const double kpar = dk_par * std::abs(static_cast<double>(core::fft_index(m, len)));
-        std::complex<float>* plane = S + (a + m) * M;
-        for (std::size_t q = 0; q < M; ++q)
-          if (kpar < slope * kperp[q] + settings_.wedge_buffer_per_mpc) plane[q] = 0;
+      for (std::size_t q0 = 0; q0 < M; q0 += los_block) {
+        const std::size_t many = std::min(los_block, M - q0);
+        auto* p = reinterpret_cast<fftwf_complex*>(S + a * M + q0);
+        const auto& [fwd, bwd] = plans.los.at({len, many, fftwf_alignment_of(reinterpret_cast<float*>(p))});
+        fftwf_execute_dft(fwd.get(), p, p);
+        for (std::size_t m = 0; m < len; ++m) {
+          const double kpar = dk_par * std::abs(static_cast<double>(core::fft_index(m, len)));
+          std::complex<float>* plane = S + (a + m) * M;
+          for (std::size_t q = q0; q < q0 + many; ++q)
+            if (kpar < slope * kperp[q] + settings_.wedge_buffer_per_mpc) plane[q] = 0;
+        }
+        fftwf_execute_dft(bwd.get(), p, p);
       }
-      fftwf_execute_dft(bwd.get(), p, p);
     }
   }
 

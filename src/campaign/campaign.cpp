@@ -1,5 +1,6 @@
 #include "campaign/campaign.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <fstream>
 #include <sstream>
@@ -8,6 +9,9 @@
 #include "campaign/schema.hpp"
 #include "core/checksum.hpp"
 #include "core/errors.hpp"
+#ifdef SPINFLIP_HAVE_INGEST
+#include "ingest/ingest.hpp"
+#endif
 
 namespace spinflip::campaign {
 
@@ -117,6 +121,57 @@ Campaign Campaign::from_string(std::string text, std::string source_name, const 
   impl->parameters = read_parameters(cfg);
 
   const std::size_t n_blocks = cfg.array_size("designs");
+  if (cfg.has_table("ingest")) {
+#ifdef SPINFLIP_HAVE_INGEST
+    // The manifest is the design: its rows are the points and realisations (docs/ingest.md).
+    if (n_blocks > 0)
+      throw ConfigError(cfg.location("designs") + ": [[designs]]: a campaign with an [ingest] table takes its "
+                        "points from the manifest (ingest.manifest); remove the [[designs]] blocks");
+    auto m = ingest::manifest_from(cfg);
+    ingest::throw_if_problems(m.problems);
+    std::string hashed = cfg.normalised_text() + "\n# ingest.manifest\n" + file_bytes(m.source);
+    const auto mpoints = ingest::points_of(m);
+    const std::vector<double>* fiducial = nullptr;
+    std::size_t fiducial_index = 0;
+    for (std::size_t i = 0; i < mpoints.size(); ++i)
+      if (mpoints[i].role == "fiducial") {
+        fiducial = &mpoints[i].values, fiducial_index = i;
+        break;
+      }
+    std::size_t max_real = 0;
+    for (const auto& mp : mpoints) {
+      DesignPoint p;
+      p.values = mp.values;
+      p.role = mp.role == "training"   ? Role::training
+               : mp.role == "fiducial" ? Role::fiducial
+               : mp.role == "stencil+" ? Role::stencil_plus
+               : mp.role == "stencil-" ? Role::stencil_minus
+                                       : Role::list;
+      const std::size_t point = impl->points.size();
+      p.seed_point = point;
+      if ((p.role == Role::stencil_plus || p.role == Role::stencil_minus) && fiducial) {
+        p.seed_point = fiducial_index;  // noise seeds as a generated stencil's (DESIGN.md §3)
+        for (std::size_t j = 0; j < p.values.size(); ++j)
+          if (p.values[j] != (*fiducial)[j]) {
+            p.stencil_param = static_cast<int>(j);
+            p.stencil_step = p.values[j] - (*fiducial)[j];
+            break;
+          }
+      }
+      for (const auto& rr : mp.realisations) {
+        impl->entries.push_back({point, rr.first});
+        max_real = std::max(max_real, rr.first + 1);
+      }
+      impl->points.push_back(std::move(p));
+    }
+    // Ragged: points may have different realisation counts; `realisations` is the largest.
+    impl->designs.push_back({"ingest", m.source.filename().string(), 0, impl->points.size(), max_real});
+    impl->sha256 = core::sha256_hex(hashed);
+    return Campaign(std::move(impl));
+#else
+    throw ConfigError(cfg.location("ingest") + ": [ingest]: this build has no ingest module");
+#endif
+  }
   if (n_blocks == 0)
     throw ConfigError(cfg.source_name() + ": no [[designs]] block: a campaign needs at least one "
                       "(kind = latin_hypercube, sobol, grid, fiducial, stencil or list)");

@@ -20,6 +20,9 @@
 #include "core/log.hpp"
 #include "cosmo/cosmology.hpp"
 #include "instrument/instrument.hpp"
+#ifdef SPINFLIP_HAVE_INGEST
+#include "ingest/ingest.hpp"
+#endif
 #include "sim/lightcone.hpp"
 #include "stats/stats.hpp"
 
@@ -103,9 +106,15 @@ struct Setup {
   std::vector<instrument::Unit> slices, chunks;
   stats::Geometry slice_geometry, chunk_geometry;
   catalogue::Layout layout;
+#ifdef SPINFLIP_HAVE_INGEST
+  std::optional<ingest::Manifest> manifest;  // [ingest]: cones come from these files
+#endif
 
   explicit Setup(const Campaign& c) : fiducial_config(c.config_for_point(fiducial_point_of(c))) {
     const core::Config& cfg = c.config();
+#ifdef SPINFLIP_HAVE_INGEST
+    if (cfg.has_table("ingest")) manifest = ingest::manifest_from(cfg);
+#endif
     const cosmo::Cosmology cosmology(cosmo::parameters_from(fiducial_config));
     const sim::ConeSettings cone = sim::settings_from(fiducial_config);
     // LOS cell centres exactly as sim::generate_cone places them.
@@ -167,7 +176,12 @@ struct Setup {
     for (const auto& e : c.entries()) {
       const rng::EntryKey key = c.entry_key(e);
       L.entries.push_back({static_cast<std::int64_t>(e.point), static_cast<std::int64_t>(e.realisation),
-                           {key.campaign_seed, key.point, key.realisation}});
+                           {key.campaign_seed, key.point, key.realisation}, {}});
+#ifdef SPINFLIP_HAVE_INGEST
+      if (manifest)
+        if (auto row = ingest::row_of(*manifest, c.points()[e.point].values, e.realisation))
+          L.entries.back().source_file = manifest->rows[*row].file.string();
+#endif
     }
     L.history_z = geometry.z;
     for (const auto& s : scenarios) {
@@ -472,7 +486,20 @@ class Worker {
       sim::check_settings(*settings, *cosmology);
     });
     sim::LightCone cone;
-    agreed([&] { cone = sim::generate_cone(*settings, *cosmology, key, group_); });
+#ifdef SPINFLIP_HAVE_INGEST
+    if (setup_.manifest)
+      agreed([&] {
+        auto row = ingest::row_of(*setup_.manifest, c_.points()[entry.point].values, entry.realisation);
+        if (!row) throw InputError("no manifest row for this entry");
+        auto got = ingest::read_cone(*setup_.manifest, *row, ingest::target_from(*settings, *cosmology), *cosmology,
+                                     group_);
+        result.source_file = got.file.string();
+        result.source_sha256 = got.sha256;
+        cone = std::move(got.cone);
+      });
+    else
+#endif
+      agreed([&] { cone = sim::generate_cone(*settings, *cosmology, key, group_); });
     checkpoint();
     core::Array3<float> clean = sim::allgather_cone(cone, group_);
     agreed([&] { stats::check_finite(clean.data.data(), clean.size(), "light cone δT_b"); });

@@ -18,6 +18,9 @@
 #ifdef SPINFLIP_HAVE_STATS
 #include "stats/stats.hpp"
 #endif
+#ifdef SPINFLIP_HAVE_INGEST
+#include "ingest/ingest.hpp"
+#endif
 
 namespace spinflip::campaign {
 
@@ -164,10 +167,22 @@ PlanReport plan(const Campaign& c, const PlanOptions& options) {
       r.warnings.push_back(cfg.location(k + "points") + ": " + k + "points = " + std::to_string(d.points) +
                            " is not a power of 2: a Sobol design keeps its balance only at powers of 2");
     if (d.kind == "list") extra = ", from " + cfg.string(k + "file");
+    if (d.kind == "ingest") {  // ragged: points may hold different numbers of realisations
+      say("  [" + std::to_string(b) + "] ingest \"" + d.name + "\": " + std::to_string(d.points) + " points, " +
+          std::to_string(c.entries().size()) + " entries (cone files, up to " + std::to_string(d.realisations) +
+          " realisations a point)");
+      continue;
+    }
     say("  [" + std::to_string(b) + "] " + d.kind + (d.name != d.kind ? " \"" + d.name + "\"" : "") + ": " +
         std::to_string(d.points) + " points × " + std::to_string(d.realisations) + " realisations = " +
         std::to_string(d.entries()) + " entries" + extra);
   }
+#ifdef SPINFLIP_HAVE_INGEST
+  if (cfg.has_table("ingest"))
+    attempt([&] {
+      for (auto& line : ingest::check_campaign(cfg, options.scan)) r.problems.push_back(std::move(line));
+    });
+#endif
   // Stencil realisations beyond the fiducial's have no fiducial entry to difference against.
   std::size_t fid_real = 0;
   for (const auto& d : c.designs())

@@ -24,6 +24,7 @@ MemoryEstimate estimate_memory(const core::Config& config, std::size_t chunk_cel
 struct PlanOptions {
   double memory_limit_gb = 0;  // > 0: the command line's limit (overrides the campaign's)
   int ranks_per_node = 1;      // for the node's limit: MemAvailable / ranks_per_node
+  bool scan = false;           // [ingest]: read every file's data too (NaN/Inf), not only headers
 };
 
 struct PlanReport {

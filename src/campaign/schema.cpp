@@ -12,6 +12,9 @@
 #ifdef SPINFLIP_HAVE_STATS
 #include "stats/stats.hpp"
 #endif
+#ifdef SPINFLIP_HAVE_INGEST
+#include "ingest/ingest.hpp"
+#endif
 
 namespace spinflip::campaign {
 
@@ -92,6 +95,9 @@ const core::Schema& campaign_schema() {
 #endif
 #ifdef SPINFLIP_HAVE_STATS
     stats::declare_keys(s);
+#endif
+#ifdef SPINFLIP_HAVE_INGEST
+    ingest::declare_keys(s);
 #endif
     return s;
   }();

@@ -11,6 +11,7 @@
 #include <sys/file.h>
 #include <unistd.h>
 
+#include <algorithm>
 #include <chrono>
 #include <cmath>
 #include <cstring>
@@ -242,7 +243,7 @@ struct Catalogue::Impl {
   int rank = 0;
   LockFile lock;
   Handle file, dxpl;
-  Handle status, error, wall_time, rank_of, x_hi, mean_tb;
+  Handle status, error, wall_time, rank_of, x_hi, mean_tb, source_sha256;
   std::vector<std::vector<KernelSets>> stats;  // [scenario][kernel]
   hsize_t n_entries = 0, n_z = 0;
   bool closed = false;
@@ -255,7 +256,7 @@ struct Catalogue::Impl {
       // that never come. The file stays valid (nothing but raw data changed).
       for (auto& s : stats)
         for (auto& k : s) k.values.release();
-      for (Handle* h : {&status, &error, &wall_time, &rank_of, &x_hi, &mean_tb, &file}) h->release();
+      for (Handle* h : {&status, &error, &wall_time, &rank_of, &x_hi, &mean_tb, &source_sha256, &file}) h->release();
     } else {
       try {
         close_all();
@@ -268,7 +269,7 @@ struct Catalogue::Impl {
   void close_all() {
     for (auto& s : stats)
       for (auto& k : s) k.values.close();
-    for (Handle* h : {&status, &error, &wall_time, &rank_of, &x_hi, &mean_tb}) h->close();
+    for (Handle* h : {&status, &error, &wall_time, &rank_of, &x_hi, &mean_tb, &source_sha256}) h->close();
     dxpl.close();
     file.close();
     closed = true;
@@ -400,6 +401,13 @@ Catalogue Catalogue::create(const fs::path& path, const Layout& L, MPI_Comm comm
       c.dataset(g, "wall_time_s", H5T_NATIVE_DOUBLE, {ne}, &nan);
       const std::int32_t none = -1;
       c.dataset(g, "rank", H5T_NATIVE_INT32, {ne}, &none);
+      // Ingested cones (docs/ingest.md): the file is known now, its checksum when the entry runs.
+      std::vector<std::string> files;
+      std::size_t longest = 1;
+      for (const auto& e : L.entries) files.push_back(e.source_file), longest = std::max(longest, e.source_file.size());
+      c.make_strings(g, "source_file", files, longest + 1);  // fit() keeps bytes - 1
+      Handle st = h5::fixed_string_type(sha256_text_bytes);
+      c.dataset(g, "source_sha256", st, {ne});
     }
     {
       Handle g = c.group(file, "cones");
@@ -492,6 +500,7 @@ Catalogue Catalogue::open(const fs::path& path, const Layout& L, MPI_Comm comm) 
     impl->error = open_dataset(g, "error");
     impl->wall_time = open_dataset(g, "wall_time_s");
     impl->rank_of = open_dataset(g, "rank");
+    if (H5Lexists(g, "source_sha256", H5P_DEFAULT) > 0) impl->source_sha256 = open_dataset(g, "source_sha256");
     Handle h = open_group(impl->file, "cones/history");
     impl->x_hi = open_dataset(h, "x_hi");
     impl->mean_tb = open_dataset(h, "mean_tb_mK");
@@ -559,6 +568,12 @@ void Catalogue::write_entry(std::size_t entry, const EntryResult& r) {
   m.write_row(m.error, t, entry, blank);  // a retried failure loses its old message
   m.write_row(m.wall_time, H5T_NATIVE_DOUBLE, entry, &r.wall_time_s);
   m.write_row(m.rank_of, H5T_NATIVE_INT32, entry, &r.rank);
+  if (m.source_sha256) {  // absent in catalogues made before ingest
+    char sha[sha256_text_bytes] = {};
+    std::memcpy(sha, r.source_sha256.data(), std::min(r.source_sha256.size(), sha256_text_bytes));
+    Handle st = h5::fixed_string_type(sha256_text_bytes);
+    m.write_row(m.source_sha256, st, entry, sha);
+  }
   const std::int8_t done = static_cast<std::int8_t>(Status::done);
   m.write_row(m.status, H5T_NATIVE_INT8, entry, &done);  // last: the entry's commit point
 }

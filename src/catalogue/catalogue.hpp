@@ -22,6 +22,7 @@ namespace spinflip::catalogue {
 
 inline constexpr std::int64_t format_version = 1;
 inline constexpr std::size_t error_text_bytes = 256;
+inline constexpr std::size_t sha256_text_bytes = 64;
 
 enum class Status : std::int8_t { pending = 0, done = 1, failed = 2 };
 
@@ -64,6 +65,7 @@ struct PointInfo {
 struct EntryInfo {
   std::int64_t point = 0, realisation = 0;
   std::array<std::uint64_t, 3> seed{};  // (campaign seed, seed point, realisation)
+  std::string source_file;              // ingested cone's file, empty for generated entries
 };
 
 /// Everything the file holds except the entries' results.
@@ -84,6 +86,7 @@ struct EntryResult {
   std::vector<std::vector<std::vector<double>>> values;  // [scenario][kernel]: n_units × n_coeff, C order
   double wall_time_s = 0;
   std::int32_t rank = 0;
+  std::string source_file, source_sha256;  // ingested entries: the file read and its sha256 (hex)
 };
 
 class Catalogue {

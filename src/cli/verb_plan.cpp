@@ -28,6 +28,7 @@ struct PlanArgs {
   double memory_limit_gb = 0;
   int ranks_per_node = 0;
   bool probe = false;
+  bool scan = false;
 };
 
 [[maybe_unused]] std::string fmt(double v, int precision = 3) {
@@ -105,12 +106,15 @@ RegisterVerb plan_verb(
       sub.add_flag("--probe", a->probe,
                    "time one entry through the driver (on rank 0, scratch catalogue) and estimate the campaign's cost");
 #endif
+      sub.add_flag("--scan", a->scan,
+                   "with [ingest]: read every cone file's data too and report NaN/Inf (slow for big files)");
       sub.add_option("--points-csv", a->points_csv,
                      "write the design points (point, design, role, seed_point, parameters...) to this CSV file");
       return [a]() {
         const auto c = campaign::Campaign::load(a->campaign_file);
         campaign::PlanOptions opt;
         opt.memory_limit_gb = a->memory_limit_gb;
+        opt.scan = a->scan;
         opt.ranks_per_node = a->ranks_per_node > 0 ? a->ranks_per_node : ranks_on_this_node();
         const auto report = campaign::plan(c, opt);
         if (world_rank() != 0) return report.problems.empty() ? 0 : 2;

@@ -33,19 +33,20 @@ fiducial=$(awk -F, 'NR > 1 && $3 == "fiducial" { print $1; exit }' "$out/points.
 
 step "covariance of the fiducial realisations -> $out/covariance.h5 and its picture"
 "$spinflip" covariance "$out/demo.h5" -o "$out/covariance.h5" \
-    --select 'name=P(k) deep;kernel=power;scenario=deep' \
-    --select 'name=scattering deep;kernel=scattering;scenario=deep'
+    --select 'name=P(k) deep;kernel=power;quantity=0;scenario=deep;every=3' \
+    --select 'name=S1 deep;kernel=scattering;order=1;scenario=deep;every=3'
 
 step "Fisher forecasts: which statistic and which instrument constrain the sources best"
 "$spinflip" fisher "$out/demo.h5" -o "$out/fisher.h5" --combined \
-    --select 'name=P(k) perfect;kernel=power;scenario=perfect' \
-    --select 'name=P(k) deep;kernel=power;scenario=deep' \
-    --select 'name=scattering deep;kernel=scattering;scenario=deep' \
-    --select 'name=P(k)+scattering deep;kernel=power,scattering;scenario=deep' \
-    --select 'name=P(k)+scattering shallow;kernel=power,scattering;scenario=shallow'
+    --select 'name=P(k) perfect;kernel=power;quantity=0;scenario=perfect;every=3' \
+    --select 'name=P(k) deep;kernel=power;quantity=0;scenario=deep;every=3' \
+    --select 'name=S1 deep;kernel=scattering;order=1;scenario=deep;every=3' \
+    --select 'name=P(k)+S1 deep;kernel=power,scattering;quantity=0;order=1;scenario=deep;every=3' \
+    --select 'name=P(k)+S1 shallow;kernel=power,scattering;quantity=0;order=1;scenario=shallow;every=3'
 
 step "training set for an emulator (split by design point) -> $out/train.h5"
-"$spinflip" export "$out/demo.h5" -o "$out/train.h5" --select 'name=deep;kernel=power,scattering;scenario=deep'
+"$spinflip" export "$out/demo.h5" -o "$out/train.h5" \
+    --select 'name=deep;kernel=power,scattering;quantity=0;order=1;scenario=deep;every=3'
 
 step "a Slurm job chain for the same campaign -> $out/jobs"
 "$spinflip" jobscript "$campaign" --walltime 01:00:00 --chain 4 --output "$out/jobs" -o "$out/demo.h5"

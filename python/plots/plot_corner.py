@@ -39,7 +39,9 @@ def main(src, dst):
     p = len(names)
     colours = plt.rcParams["axes.prop_cycle"].by_key()["color"]
     fig, axes = plt.subplots(p, p, figsize=(2.6 * p + 1, 2.6 * p + 1), squeeze=False)
-    span = np.max([np.sqrt(np.diag(c)) for c in covs.values()], axis=0) * 3.2
+    # Frame the typical selection (median width), not the weakest: a selection that
+    # constrains little runs off the panels instead of shrinking every other ellipse to a dot.
+    span = np.median([np.sqrt(np.diag(c)) for c in covs.values()], axis=0) * 3.2
     label = [f"{n} [{u}]" if u else n for n, u in zip(names, units)]
     for i in range(p):
         for j in range(p):

@@ -281,7 +281,7 @@ void run_fisher(const FisherOptions& o) {
   std::vector<double> pfid;
   for (auto i : st.params) {
     pnames.push_back(detail::fisher_param_name(des, i));
-    punits.push_back(des.log[i] ? "log10(" + des.units[i] + ")" : des.units[i]);
+    punits.push_back(des.log[i] && !des.units[i].empty() ? "log10(" + des.units[i] + ")" : des.units[i]);
     double v = des.points(st.fiducial, static_cast<Eigen::Index>(i));
     pfid.push_back(des.log[i] ? std::log10(v) : v);
   }

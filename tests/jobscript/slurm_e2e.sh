@@ -115,14 +115,20 @@ fi
 
 [ "$phase" = chain ] || fail "unknown phase '$phase'"
 # A campaign that outlasts one 1-minute job: the tiny campaign with its wall time
-# cut by a signal lead of 40 s, so the first job stops after ~20 s of work.
-# The tiny campaign runs ~9 entries/s on 2 ranks: 200 training points make the work
-# outlast the ~20 s of work per job, so several jobs of the chain are needed.
-sed 's/^points = 6$/points = 200/' "$source_dir/jobs/tiny/campaign.toml" > campaign.toml \
-  || fail "no jobs/tiny/campaign.toml"
-grep -q '^points = 200$' campaign.toml || fail "could not enlarge the tiny campaign's training design"
+# cut by a signal lead of 40 s, so each job stops after ~20 s of work. How many
+# entries make ~60 s of work depends on the machine, so measure this machine's
+# rate on the tiny campaign first (the run's last log line gives entries/s).
+cp "$source_dir/jobs/tiny/campaign.toml" calibrate.toml || fail "no jobs/tiny/campaign.toml"
+calib=$(OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1 mpirun --oversubscribe -n "$cpus" \
+    "$spinflip" run calibrate.toml -o "$work/calibrate.h5" 2>&1) || fail "calibration run failed: $calib"
+rate=$(grep -o '[0-9.]* entries/s' <<<"$calib" | tail -1 | cut -d' ' -f1)
+[ -n "$rate" ] || fail "calibration run printed no entries/s"
+points=$(awk -v r="$rate" 'BEGIN { p = int(r * 60); if (p < 60) p = 60; if (p > 3000) p = 3000; print p }')
+echo "this machine: $rate entries/s on $cpus ranks -> $points training points"
+sed "s/^points = 6\$/points = $points/" calibrate.toml > campaign.toml
+grep -q "^points = $points\$" campaign.toml || fail "could not enlarge the tiny campaign's training design"
 ranks=$cpus
-"$spinflip" jobscript campaign.toml --walltime 00:01:00 --signal-lead-seconds 40 --chain 8 \
+"$spinflip" jobscript campaign.toml --walltime 00:01:00 --signal-lead-seconds 40 --chain 10 \
     --ranks-per-node "$ranks" --output jobs -o "$work/slurm.h5" >/dev/null || fail "jobscript refused"
 t0=$(date +%s)
 sbatch --output="$work/jobs/logs/%x-%j.out" "$work/jobs/campaign.slurm" || fail "sbatch"

@@ -5,7 +5,9 @@ with the tiny campaign's parameters and an [ingest] table (one manifest of the
 HDF5 files on their frequency axis, one of the .npy files on a distance axis)
 must give the same /stats values to 1e-6 relative, and /entries/source_sha256
 must be hashlib.sha256 of each file. `spinflip plan` on a manifest naming a
-missing file must exit 2 and name it.
+missing file must exit 2 and name it; `plan --scan` must find a NaN that the
+header checks cannot see; and `run` on a truncated file must exit 2 without
+changing the existing catalogue.
 
 Usage: check_ingest_campaign.py   (SPINFLIP, SPINFLIP_SOURCE_DIR, MPIEXEC in the environment)"""
 import hashlib
@@ -136,6 +138,33 @@ def main(d):
     r = run(["plan", toml], cwd=d)
     check(r.returncode == 2, f"plan on a missing file: exit {r.returncode} (2 expected)")
     check("gone.npy" in r.stderr, f"plan names the missing file: {r.stderr.strip()[:300]}")
+
+    # A NaN in a file is invisible to the header checks and found by `plan --scan`.
+    npy_toml = os.path.join(d, "ingest_npy.toml")
+    cone5 = os.path.join(d, "cones", "e5.npy")
+    a = np.load(cone5)
+    a[1, 2, 3] = np.nan
+    np.save(cone5, a)
+    r = run(["plan", npy_toml], cwd=d)
+    check(r.returncode == 0, f"plan without --scan reads headers only: exit {r.returncode}")
+    r = run(["plan", npy_toml, "--scan"], cwd=d)
+    check(r.returncode == 2 and "e5.npy" in r.stderr, f"plan --scan finds the NaN in e5.npy: exit {r.returncode} "
+                                                      f"{r.stderr.strip()[:300]}")
+
+    # A truncated file under an existing catalogue: run refuses (exit 2, one line naming
+    # the file) and the catalogue's bytes are unchanged (DESIGN.md §8: nothing is lost).
+    catalogue = os.path.join(d, "ingest_npy.h5")
+    with open(catalogue, "rb") as f:
+        before = hashlib.sha256(f.read()).hexdigest()
+    cone3 = os.path.join(d, "cones", "e3.npy")
+    size = os.path.getsize(cone3)
+    with open(cone3, "r+b") as f:
+        f.truncate(size // 2)
+    r = run(["run", npy_toml, "--retry-failed"], ranks=2, cwd=d)
+    check(r.returncode == 2 and "e3.npy" in r.stderr, f"run on a truncated file: exit {r.returncode} "
+                                                      f"{r.stderr.strip()[-300:]}")
+    with open(catalogue, "rb") as f:
+        check(hashlib.sha256(f.read()).hexdigest() == before, "the existing catalogue is byte-unchanged")
 
 
 if __name__ == "__main__":

@@ -20,6 +20,7 @@
 #include "catalogue/catalogue.hpp"
 #include "cosmo/cosmology.hpp"
 #include "sim/lightcone.hpp"
+#include "bench_support.hpp"
 
 using namespace spinflip;
 
@@ -47,16 +48,7 @@ void generate_cone(benchmark::State& state) {
   }
 }
 
-class Collect : public benchmark::ConsoleReporter {
- public:
-  std::map<std::string, double> seconds;
-  void ReportRuns(const std::vector<Run>& runs) override {
-    for (const auto& r : runs)
-      if (r.run_type == Run::RT_Iteration && r.iterations > 0)
-        seconds[r.benchmark_name()] = r.real_accumulated_time / static_cast<double>(r.iterations);
-    ConsoleReporter::ReportRuns(runs);
-  }
-};
+using Collect = bench::SecondsPerIteration;
 
 }  // namespace
 

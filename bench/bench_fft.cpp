@@ -10,6 +10,7 @@
 #include <string>
 
 #include "fft/fft.hpp"
+#include "bench_support.hpp"
 
 using namespace spinflip;
 
@@ -77,15 +78,6 @@ void bare_c2c_2d(benchmark::State& state) {
   record(state, "bare_c2c_2d");
 }
 
-/// Collects each run's real time per iteration to print the ratios at the end.
-class RatioReporter : public benchmark::ConsoleReporter {
- public:
-  void ReportRuns(const std::vector<Run>& runs) override {
-    for (const auto& r : runs)
-      if (r.run_type == Run::RT_Iteration) seconds_per_call[r.benchmark_name()] = r.GetAdjustedRealTime();
-    ConsoleReporter::ReportRuns(runs);
-  }
-};
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -99,8 +91,9 @@ int main(int argc, char** argv) {
     benchmark::RegisterBenchmark(("bare_c2c_2d/" + std::to_string(rep)).c_str(), bare_c2c_2d)->MinTime(0.3);
   }
   benchmark::Initialize(&argc, argv);
-  RatioReporter reporter;
+  bench::SecondsPerIteration reporter;
   benchmark::RunSpecifiedBenchmarks(&reporter);
+  seconds_per_call = reporter.seconds;
   auto best = [](const std::string& prefix) {
     double b = 1e300;
     for (const auto& [name, t] : seconds_per_call)

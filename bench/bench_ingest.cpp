@@ -18,6 +18,7 @@
 #include "cosmo/cosmology.hpp"
 #include "ingest/ingest.hpp"
 #include "stats/stats.hpp"
+#include "bench_support.hpp"
 
 using namespace spinflip;
 
@@ -102,16 +103,7 @@ void its_kernels(benchmark::State& state) {
   }
 }
 
-class Collect : public benchmark::ConsoleReporter {
- public:
-  std::map<std::string, double> seconds;
-  void ReportRuns(const std::vector<Run>& runs) override {
-    for (const auto& r : runs)
-      if (r.run_type == Run::RT_Iteration && r.iterations > 0)
-        seconds[r.benchmark_name()] = r.real_accumulated_time / static_cast<double>(r.iterations);
-    ConsoleReporter::ReportRuns(runs);
-  }
-};
+using Collect = bench::SecondsPerIteration;
 
 }  // namespace
 

@@ -16,6 +16,7 @@
 #include "cosmo/cosmology.hpp"
 #include "fft/fft.hpp"
 #include "instrument/instrument.hpp"
+#include "bench_support.hpp"
 
 using namespace spinflip;
 
@@ -96,14 +97,6 @@ void its_transforms(benchmark::State& state) {
 }
 
 // Ratios use CPU time: the 2-core machine is shared, and wall time there measures the load.
-class RatioReporter : public benchmark::ConsoleReporter {
- public:
-  void ReportRuns(const std::vector<Run>& runs) override {
-    for (const auto& r : runs)
-      if (r.run_type == Run::RT_Iteration) seconds[r.benchmark_name()] = r.cpu_accumulated_time / static_cast<double>(r.iterations);
-    ConsoleReporter::ReportRuns(runs);
-  }
-};
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -119,8 +112,9 @@ int main(int argc, char** argv) {
   benchmark::RegisterBenchmark("apply_resolution_noise", apply_scenario, "noise")->Iterations(3)->Unit(benchmark::kMillisecond);
   benchmark::RegisterBenchmark("its_transforms", its_transforms)->Iterations(3)->Unit(benchmark::kMillisecond);
   benchmark::Initialize(&argc, argv);
-  RatioReporter reporter;
+  bench::SecondsPerIteration reporter(bench::SecondsPerIteration::Clock::cpu);
   benchmark::RunSpecifiedBenchmarks(&reporter);
+  for (const auto& [name, t] : reporter.seconds) seconds[name] = t;
   const double a = seconds["apply_full_scenario/iterations:3"], t = seconds["its_transforms/iterations:3"];
   std::printf("resolution only / transforms = %.2f, resolution + noise / transforms = %.2f\n",
               seconds["apply_resolution_only/iterations:3"] / t, seconds["apply_resolution_noise/iterations:3"] / t);

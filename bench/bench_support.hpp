@@ -1,0 +1,31 @@
+// Shared by the benchmarks: a console reporter that also keeps each run's
+// seconds per iteration (wall, or CPU where a shared machine's load would
+// swamp wall time) by name, so a benchmark can print ratios of runs measured
+// in the same invocation.
+#pragma once
+#include <benchmark/benchmark.h>
+
+#include <map>
+#include <string>
+#include <vector>
+
+namespace spinflip::bench {
+
+class SecondsPerIteration : public benchmark::ConsoleReporter {
+ public:
+  enum class Clock { wall, cpu };
+  explicit SecondsPerIteration(Clock clock = Clock::wall) : clock_(clock) {}
+  std::map<std::string, double> seconds;
+  void ReportRuns(const std::vector<Run>& runs) override {
+    for (const auto& r : runs)
+      if (r.run_type == Run::RT_Iteration && r.iterations > 0)
+        seconds[r.benchmark_name()] =
+            (clock_ == Clock::cpu ? r.cpu_accumulated_time : r.real_accumulated_time) / static_cast<double>(r.iterations);
+    ConsoleReporter::ReportRuns(runs);
+  }
+
+ private:
+  Clock clock_;
+};
+
+}  // namespace spinflip::bench

@@ -16,6 +16,7 @@
 #include <sstream>
 
 #include "campaign/plan.hpp"
+#include "core/collective.hpp"
 #include "core/errors.hpp"
 #include "core/log.hpp"
 #include "cosmo/cosmology.hpp"
@@ -203,30 +204,6 @@ struct Setup {
     }
   }
 };
-
-/// Rank 0 runs `f`; a user error it throws is rethrown on every rank.
-template <class F>
-void on_world_root(MPI_Comm comm, F&& f) {
-  std::string message;
-  int kind = 0;
-  if (rank_of(comm) == 0) {
-    try {
-      f();
-    } catch (const Error& e) {
-      kind = e.exit_status() == 2 ? 2 : 1;
-      message = e.what();
-    } catch (const std::exception& e) {
-      kind = 1, message = e.what();
-    }
-  }
-  long long header[2] = {kind, static_cast<long long>(message.size())};
-  SPINFLIP_CHECK_MPI(MPI_Bcast(header, 2, MPI_LONG_LONG, 0, comm));
-  if (header[0] == 0) return;
-  message.resize(static_cast<std::size_t>(header[1]));
-  SPINFLIP_CHECK_MPI(MPI_Bcast(message.data(), static_cast<int>(header[1]), MPI_CHAR, 0, comm));
-  if (header[0] == 2) throw ConfigError(message);
-  throw InternalError(message);
-}
 
 /// The shared counters on world rank 0: the next todo index, entries done and
 /// failed by this run, and a stop flag any group may raise.
@@ -588,10 +565,11 @@ RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
 
   // Everything `spinflip plan` refuses, run refuses too (memory, geometry, kernels).
   const int per_node = ranks_per_node(world);
-  on_world_root(world, [&] {
+  core::run_on_root(world, [&] {
     PlanOptions po;
     po.memory_limit_gb = options.memory_limit_gb;
     po.ranks_per_node = per_node;
+    if (options.group_size) po.group_size = static_cast<std::size_t>(g);  // --group-size overrides the campaign's
     PlanReport report = plan(c, po);
     if (!report.problems.empty())
       throw ConfigError(report.problems.front() +

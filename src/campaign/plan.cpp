@@ -61,10 +61,10 @@ double MemoryEstimate::peak() const {
 // Buffers counted from src/sim/lightcone.cpp (generate_cone), src/instrument/instrument.cpp
 // (Scenario::apply, grid_coverage) and the driver's flow (gather the δT_b slabs into a whole
 // cone, copy it per scenario, cut slices and chunks). Slab parts are divided by the group.
-MemoryEstimate estimate_memory(const core::Config& cfg, std::size_t chunk_cells) {
+MemoryEstimate estimate_memory(const core::Config& cfg, std::size_t chunk_cells, std::size_t group_size) {
   MemoryEstimate m;
   m.overhead = 64e6;  // executable, MPI, HDF5 and FFTW state (an allowance, not measured)
-  m.group_size = static_cast<std::size_t>(cfg.integer("campaign.group_size"));
+  m.group_size = group_size > 0 ? group_size : static_cast<std::size_t>(cfg.integer("campaign.group_size"));
 #ifdef SPINFLIP_HAVE_SIM
   m.n_perp = static_cast<std::size_t>(cfg.integer("cone.n_perp"));
   m.n_los = static_cast<std::size_t>(cfg.integer("cone.n_los"));
@@ -222,7 +222,7 @@ PlanReport plan(const Campaign& c, const PlanOptions& options) {
   }
 #endif
 
-  MemoryEstimate mem = estimate_memory(cfg);
+  MemoryEstimate mem = estimate_memory(cfg, 0, options.group_size);
   const double np = static_cast<double>(mem.n_perp);
 
 #if defined(SPINFLIP_HAVE_COSMO) && defined(SPINFLIP_HAVE_INSTRUMENT) && defined(SPINFLIP_HAVE_SIM)
@@ -268,7 +268,7 @@ PlanReport plan(const Campaign& c, const PlanOptions& options) {
     std::vector<instrument::Unit> slices, chunks;
     if (cadence >= width) slices = instrument::slice_units(cfg, geo);
     attempt([&] { chunks = instrument::chunk_units(cfg, geo); });
-    if (!chunks.empty()) mem = estimate_memory(cfg, chunks.front().los_end - chunks.front().los_begin);
+    if (!chunks.empty()) mem = estimate_memory(cfg, chunks.front().los_end - chunks.front().los_begin, options.group_size);
     say("units: " + std::to_string(slices.size()) + " slices every " + fmt(cadence) + " MHz (width " + fmt(width) +
         " MHz), " + std::to_string(chunks.size()) + " chunks of " + fmt(cfg.real("chunks.bandwidth_MHz")) +
         " MHz" +
@@ -355,7 +355,8 @@ PlanReport plan(const Campaign& c, const PlanOptions& options) {
                                     : cfg.source_name() + ": ";
       r.problems.push_back(where + "campaign.memory_limit_gb: the per-rank peak estimate " + fmt(peak / GB) +
                            " GB exceeds the limit of " + fmt(limit_gb) + " GB (" + limit_from +
-                           "): raise campaign.group_size (now " + std::to_string(mem.group_size) +
+                           "): raise " + std::string(options.group_size > 0 ? "--group-size" : "campaign.group_size") + " (now " +
+                           std::to_string(mem.group_size) +
                            "), shrink cone.n_perp / cone.n_los, or run fewer ranks per node");
     }
   }

@@ -18,13 +18,15 @@ struct MemoryEstimate {
   double overhead = 0;    // program, libraries, MPI buffers (fixed allowance)
   double peak() const;    // overhead + persistent + max(phases)
 };
-/// chunk_cells: LOS cells of one chunk (0: assume the whole cone, an upper bound).
-MemoryEstimate estimate_memory(const core::Config& config, std::size_t chunk_cells = 0);
+/// chunk_cells: LOS cells of one chunk (0: assume the whole cone, an upper bound);
+/// group_size: ranks sharing a cone (0: campaign.group_size).
+MemoryEstimate estimate_memory(const core::Config& config, std::size_t chunk_cells = 0, std::size_t group_size = 0);
 
 struct PlanOptions {
   double memory_limit_gb = 0;  // > 0: the command line's limit (overrides the campaign's)
   int ranks_per_node = 1;      // for the node's limit: MemAvailable / ranks_per_node
   bool scan = false;           // [ingest]: read every file's data too (NaN/Inf), not only headers
+  std::size_t group_size = 0;  // > 0: the run's --group-size (overrides campaign.group_size)
 };
 
 struct PlanReport {

@@ -23,6 +23,7 @@
 #include <system_error>
 
 #include "catalogue/hdf5.hpp"
+#include "core/collective.hpp"
 #include "core/errors.hpp"
 #include "core/version.hpp"
 
@@ -39,33 +40,6 @@ int comm_rank(MPI_Comm comm) {
   int r = 0;
   SPINFLIP_CHECK_MPI(MPI_Comm_rank(comm, &r));
   return r;
-}
-
-/// Rank 0 runs `f`; its error message (empty: fine) reaches every rank, which
-/// then throw the same typed error, so user errors stay collective.
-template <class F>
-void on_root(MPI_Comm comm, F&& f) {
-  std::string message;
-  int kind = 0;  // 0 ok, 1 IoError, 2 ConfigError, 3 other
-  if (comm_rank(comm) == 0) {
-    try {
-      f();
-    } catch (const ConfigError& e) {
-      kind = 2, message = e.what();
-    } catch (const IoError& e) {
-      kind = 1, message = e.what();
-    } catch (const std::exception& e) {
-      kind = 3, message = e.what();
-    }
-  }
-  long long header[2] = {kind, static_cast<long long>(message.size())};
-  SPINFLIP_CHECK_MPI(MPI_Bcast(header, 2, MPI_LONG_LONG, 0, comm));
-  if (header[0] == 0) return;
-  message.resize(static_cast<std::size_t>(header[1]));
-  SPINFLIP_CHECK_MPI(MPI_Bcast(message.data(), static_cast<int>(header[1]), MPI_CHAR, 0, comm));
-  if (header[0] == 1) throw IoError(message);
-  if (header[0] == 2) throw ConfigError(message);
-  throw InternalError(message);
 }
 
 std::string utc_now() {
@@ -307,7 +281,7 @@ Catalogue Catalogue::create(const fs::path& path, const Layout& L, MPI_Comm comm
   fs::path partial = path;
   partial += ".partial";
   std::optional<LockFile> lock;  // rank 0, held while the file is built
-  on_root(comm, [&] {
+  core::run_on_root(comm, [&] {
     std::error_code ec;
     fs::path dir0 = path.parent_path().empty() ? fs::path(".") : path.parent_path();
     if (fs::is_directory(dir0, ec) && ::access(dir0.c_str(), W_OK) == 0) lock.emplace(path);
@@ -451,7 +425,7 @@ Catalogue Catalogue::create(const fs::path& path, const Layout& L, MPI_Comm comm
     (void)root;
     file.close();  // collective: metadata written once, here
   }
-  on_root(comm, [&] {
+  core::run_on_root(comm, [&] {
     std::error_code ec;
     fs::rename(partial, path, ec);
     if (ec) throw IoError("cannot rename " + partial.string() + " to " + path.string() + ": " + ec.message());
@@ -468,7 +442,7 @@ Catalogue Catalogue::open(const fs::path& path, const Layout& L, MPI_Comm comm) 
   SPINFLIP_CHECK_MPI(MPI_Comm_dup(comm, &impl->comm));
   impl->rank = comm_rank(comm);
   // Identity first, read-only and by one process, so a refused file is untouched.
-  on_root(comm, [&] {
+  core::run_on_root(comm, [&] {
     std::error_code ec;
     if (!fs::exists(path, ec)) throw IoError("catalogue " + path.string() + " does not exist");
     Handle fapl = serial_fapl();

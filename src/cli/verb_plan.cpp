@@ -27,6 +27,7 @@ struct PlanArgs {
   std::string campaign_file, points_csv;
   double memory_limit_gb = 0;
   int ranks_per_node = 0;
+  int group_size = 0;
   bool probe = false;
   bool scan = false;
 };
@@ -102,6 +103,9 @@ RegisterVerb plan_verb(
       sub.add_option("--ranks-per-node", a->ranks_per_node,
                      "ranks the run will place on one node (default: the ranks of this launch on this node)")
           ->check(CLI::PositiveNumber);
+      sub.add_option("--group-size", a->group_size,
+                     "ranks that will share one light cone, as run's --group-size (default: campaign.group_size)")
+          ->check(CLI::PositiveNumber);
 #ifdef SPINFLIP_HAVE_DRIVER
       sub.add_flag("--probe", a->probe,
                    "time one entry through the driver (on rank 0, scratch catalogue) and estimate the campaign's cost");
@@ -115,6 +119,7 @@ RegisterVerb plan_verb(
         campaign::PlanOptions opt;
         opt.memory_limit_gb = a->memory_limit_gb;
         opt.scan = a->scan;
+        opt.group_size = static_cast<std::size_t>(a->group_size);
         opt.ranks_per_node = a->ranks_per_node > 0 ? a->ranks_per_node : ranks_on_this_node();
         const auto report = campaign::plan(c, opt);
         if (world_rank() != 0) return report.problems.empty() ? 0 : 2;

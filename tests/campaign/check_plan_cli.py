@@ -71,8 +71,8 @@ if "--with-probe" in sys.argv[1:]:
 # 2. Memory: the generator's slabs divide by the group size (ceil(n_perp/g) rows of
 #    axis 0 each); the instrument works on whole cones on every rank and does not
 #    (src/instrument/instrument.hpp: "Works on a whole cone in memory").
-def memory(text):
-    r = plan(text, "--memory-limit-gb", "1000")
+def memory(text, *args):
+    r = plan(text, "--memory-limit-gb", "1000", *args)
     m = re.search(r"generator ([\d.e+]+) MB, instrument ([\d.e+]+) MB", r.stdout)
     if not m:
         failures.append(f"no memory line in: {r.stdout} {r.stderr}")
@@ -92,6 +92,10 @@ if abs(g2 / g1 - 0.5) > 0.01 or abs(g4 / g1 - 0.25) > 0.01:  # 64 rows split eve
     failures.append(f"generator memory does not scale with the group: {g1}, {g2}, {g4} MB")
 if abs(i4 - i1) > 0.01 * i1 or not 2.9 * cone_mb < i1 < 3.2 * cone_mb:  # 2 cones + a spectrum ≈ 3.03 cones
     failures.append(f"instrument memory should be whole cones, independent of the group: {i1}, {i2}, {i4} MB")
+# run's --group-size overrides campaign.group_size, and plan's estimate follows the same override.
+g4_cli, _ = memory(big, "--group-size", "4")
+if abs(g4_cli - g4) > 0.01 * g4:
+    failures.append(f"plan --group-size 4 estimates {g4_cli} MB for the generator, campaign.group_size = 4 gives {g4}")
 
 
 # 3. What cannot run: exit 2, one line each, naming the key.

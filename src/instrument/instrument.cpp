@@ -2,6 +2,9 @@
 
 #include <Random123/boxmuller.hpp>
 #include <fftw3.h>
+#if defined(__SSE__)
+#include <xmmintrin.h>
+#endif
 
 #include <algorithm>
 #include <cmath>
@@ -313,32 +316,71 @@ const ApplyPlans& apply_plans(std::size_t N, std::size_t L, std::size_t chunk, f
   return *cache.emplace(key, std::move(p)).first->second;
 }
 
-constexpr std::size_t tile = 32;
+constexpr std::size_t tile = 16;
+
+// Copy a tile between the cone ([q][k], q = i N + j, k contiguous) and the LOS-major
+// buffer ([k][i][j], rows of `row` floats). Four q of one row × four k move as one
+// 4×4 register transpose: element-wise copies with either side strided by a page
+// or more cost three times as much. Pure copies, so the bytes do not depend on the path.
+template <bool to_buffer>
+void transpose_tile(float* cone, float* buf, std::size_t N, std::size_t L, std::size_t row, std::size_t q0,
+                    std::size_t q1, std::size_t k0, std::size_t k1) {
+  const std::size_t plane = N * row;
+  const auto scalar = [&](std::size_t q, std::size_t ka) {
+    float* b = buf + (q / N) * row + q % N;
+    float* c = cone + q * L;
+    for (std::size_t k = ka; k < k1; ++k) {
+      if constexpr (to_buffer) b[k * plane] = c[k];
+      else c[k] = b[k * plane];
+    }
+  };
+  std::size_t q = q0;
+  for (; q < q1; q += 4) {
+    if (q + 4 > q1 || q % N + 4 > N) break;
+    std::size_t k = k0;
+#if defined(__SSE__)
+    float* b = buf + (q / N) * row + q % N;
+    float* c = cone + q * L;
+    for (; k + 4 <= k1; k += 4) {
+      if constexpr (to_buffer) {
+        __m128 r0 = _mm_loadu_ps(c + k), r1 = _mm_loadu_ps(c + L + k), r2 = _mm_loadu_ps(c + 2 * L + k),
+               r3 = _mm_loadu_ps(c + 3 * L + k);
+        _MM_TRANSPOSE4_PS(r0, r1, r2, r3);
+        _mm_storeu_ps(b + k * plane, r0);
+        _mm_storeu_ps(b + (k + 1) * plane, r1);
+        _mm_storeu_ps(b + (k + 2) * plane, r2);
+        _mm_storeu_ps(b + (k + 3) * plane, r3);
+      } else {
+        __m128 r0 = _mm_loadu_ps(b + k * plane), r1 = _mm_loadu_ps(b + (k + 1) * plane),
+               r2 = _mm_loadu_ps(b + (k + 2) * plane), r3 = _mm_loadu_ps(b + (k + 3) * plane);
+        _MM_TRANSPOSE4_PS(r0, r1, r2, r3);
+        _mm_storeu_ps(c + k, r0);
+        _mm_storeu_ps(c + L + k, r1);
+        _mm_storeu_ps(c + 2 * L + k, r2);
+        _mm_storeu_ps(c + 3 * L + k, r3);
+      }
+    }
+#endif
+    for (std::size_t d = 0; d < 4; ++d) scalar(q + d, k);
+  }
+  for (; q < q1; ++q) scalar(q, k0);
+}
 
 // cone [i][j][k] -> buf [k][i][j] (rows of `row` floats), in tiles that stay in cache.
 void to_los_major(const float* cone, float* buf, std::size_t N, std::size_t L, std::size_t row) {
   const std::size_t P = N * N;
   for (std::size_t q0 = 0; q0 < P; q0 += tile)
-    for (std::size_t k0 = 0; k0 < L; k0 += tile) {
-      const std::size_t q1 = std::min(P, q0 + tile), k1 = std::min(L, k0 + tile);
-      for (std::size_t k = k0; k < k1; ++k) {
-        float* dst = buf + k * N * row;
-        for (std::size_t q = q0; q < q1; ++q) dst[(q / N) * row + q % N] = cone[q * L + k];
-      }
-    }
+    for (std::size_t k0 = 0; k0 < L; k0 += tile)
+      transpose_tile<true>(const_cast<float*>(cone), buf, N, L, row, q0, std::min(P, q0 + tile), k0,
+                           std::min(L, k0 + tile));
 }
 
 void from_los_major(const float* buf, float* cone, std::size_t N, std::size_t L, std::size_t row) {
   const std::size_t P = N * N;
   for (std::size_t q0 = 0; q0 < P; q0 += tile)
-    for (std::size_t k0 = 0; k0 < L; k0 += tile) {
-      const std::size_t q1 = std::min(P, q0 + tile), k1 = std::min(L, k0 + tile);
-      for (std::size_t q = q0; q < q1; ++q) {
-        const float* src = buf + (q / N) * row + q % N;
-        float* dst = cone + q * L;
-        for (std::size_t k = k0; k < k1; ++k) dst[k] = src[k * N * row];
-      }
-    }
+    for (std::size_t k0 = 0; k0 < L; k0 += tile)
+      transpose_tile<false>(cone, const_cast<float*>(buf), N, L, row, q0, std::min(P, q0 + tile), k0,
+                            std::min(L, k0 + tile));
 }
 }  // namespace
 

@@ -92,6 +92,12 @@ void declare_keys(core::Schema& s) {
          .doc = "add a thermal-noise realisation (needs an array)"});
   s.add({.path = p + "wedge", .type = ValueType::boolean, .default_value = false,
          .doc = "remove the foreground wedge k∥ < m(z) k⊥ + buffer on the LOS chunks"});
+  s.add({.path = p + "taper", .type = ValueType::string, .default_value = std::string("none"),
+         .choices = {"none", "gaussian"},
+         .doc = "imaging weight on the uv grid, multiplying signal and noise of each cell: none, or a Gaussian in uv distance"});
+  s.add({.path = p + "taper_fwhm_wavelengths", .type = ValueType::real, .default_value = 1000.0, .unit = "wavelengths",
+         .min = 0.0, .min_exclusive = true,
+         .doc = "FWHM of the Gaussian taper (taper = \"gaussian\") in uv distance; weight 1/2 at half of it"});
   s.add({.path = p + "wedge_angle_deg", .type = ValueType::real, .default_value = 90.0, .unit = "deg",
          .min = 0.0, .max = 90.0, .doc = "angle θ of the wedge (90: horizon)"});
   s.add({.path = p + "wedge_buffer_per_mpc", .type = ValueType::real, .default_value = 0.0, .unit = "1/Mpc",
@@ -255,6 +261,27 @@ Scenario::Scenario(Settings settings, std::uint32_t index, std::vector<std::vect
                      (area * theta_pix * theta_pix * std::sqrt(2.0 * bw[k]));
     sigma_unit_f_[k] = static_cast<float>(sigma_unit_[k]);
   }
+  if (settings_.taper == "gaussian") {
+    // w(u) = exp(−4 ln2 u² / FWHM²), a Gaussian of that FWHM in uv distance u = |m| Δu
+    // wavelengths, Δu = D_c / (N Δ) at this LOS cell (common practice). It factorises
+    // over the two grid axes, so one table per LOS cell holds it.
+    taper_.resize(n_los_ * n_perp_);
+    const double fwhm = settings_.taper_fwhm_wavelengths;
+    for (std::size_t k = 0; k < n_los_; ++k) {
+      const double du = g.distance_mpc[k] / (static_cast<double>(n_perp_) * g.cell_mpc);
+      for (std::size_t i = 0; i < n_perp_; ++i) {
+        const double u = static_cast<double>(core::fft_index(i, n_perp_)) * du;
+        taper_[k * n_perp_ + i] = static_cast<float>(std::exp(-4.0 * std::numbers::ln2 * u * u / (fwhm * fwhm)));
+      }
+    }
+  } else if (settings_.taper != "none") {
+    throw InternalError("instrument: unknown taper '" + settings_.taper + "'");
+  }
+}
+
+double Scenario::taper_weight(std::size_t k, std::size_t i, std::size_t j) const {
+  if (taper_.empty()) return 1.0;
+  return static_cast<double>(taper_[k * n_perp_ + i] * taper_[k * n_perp_ + j]);
 }
 
 core::Array2<float> Scenario::uv_time_s(std::size_t k) const {
@@ -437,7 +464,7 @@ void Scenario::apply(core::Array3<float>& cone, const ConeGeometry& g, const rng
   // Noise is keyed by the global (group of 4 LOS cells, mode) index of the canonical
   // member of the Hermitian pair, so ñ(-k) = conj ñ(k) whoever draws it.
   struct Mode {
-    std::size_t full, canon;
+    std::size_t i, j, full, canon;
     bool self_conjugate;
     float im_sign;
   };
@@ -445,13 +472,17 @@ void Scenario::apply(core::Array3<float>& cone, const ConeGeometry& g, const rng
     const std::size_t i = mode / H, j = mode % H;
     const std::size_t full = i * N + j, partner = ((N - i) % N) * N + (N - j) % N;
     const std::size_t canon = std::min(full, partner);
-    return Mode{full, canon, full == partner, full == canon ? 1.0f : -1.0f};
+    return Mode{i, j, full, canon, full == partner, full == canon ? 1.0f : -1.0f};
+  };
+  // The taper weighs signal and noise alike, as an imaging weight does.
+  const auto tapered = [&](float scale, std::size_t k, const Mode& md) {
+    return taper_.empty() ? scale : scale * (taper_[k * N + md.i] * taper_[k * N + md.j]);
   };
   // Observed value of spectrum cell v at LOS cell k; z holds the normals of k's group
   // (drawn on demand, group tracks which group they belong to).
   const auto observe = [&](std::complex<float> v, std::size_t k, const Mode& md, float scale,
                            std::array<float, 8>& z, std::size_t& group) -> std::complex<float> {
-    if (uv_time_.empty()) return v * scale;
+    if (uv_time_.empty()) return v * tapered(scale, k, md);
     const float t = uv_time_[k * P + md.full];
     if (!(t > 0)) return 0;  // unobserved: no RNG either
     if (noise) {
@@ -464,7 +495,7 @@ void Scenario::apply(core::Array3<float>& cone, const ConeGeometry& g, const rng
       v += md.self_conjugate ? std::complex<float>(sqrt2 * sig * zk[0], 0.0f)
                              : std::complex<float>(sig * zk[0], md.im_sign * sig * zk[1]);
     }
-    return v * scale;
+    return v * tapered(scale, k, md);
   };
   constexpr std::size_t no_group = std::numeric_limits<std::size_t>::max();
 
@@ -620,6 +651,8 @@ std::vector<Scenario> scenarios_from(const core::Config& c, const std::function<
     s.wedge = c.boolean(key(name, "wedge"));
     s.wedge_angle_deg = c.real(key(name, "wedge_angle_deg"));
     s.wedge_buffer_per_mpc = c.real(key(name, "wedge_buffer_per_mpc"));
+    s.taper = c.string(key(name, "taper"));
+    s.taper_fwhm_wavelengths = c.real(key(name, "taper_fwhm_wavelengths"));
     if (s.noise && s.array == "none")
       throw ConfigError(c.location(key(name, "noise")) + ": " + key(name, "noise") +
                         " = true needs an array (array = \"builtin\" or \"csv\"), not array = \"none\"");
@@ -654,7 +687,7 @@ std::vector<Scenario> scenarios_from(const core::Config& c, const std::function<
     for (const char* leaf : {"array", "array_file", "stations", "station_diameter_m", "core_radius_m",
                              "outer_radius_m", "latitude_deg", "declination_deg", "hours_per_day", "integration_s",
                              "observing_hours", "receiver_temperature_K", "noise", "wedge", "wedge_angle_deg",
-                             "wedge_buffer_per_mpc"})
+                             "wedge_buffer_per_mpc", "taper", "taper_fwhm_wavelengths"})
       s.attributes.emplace_back(leaf, c.value(key(name, leaf)));
     auto coverage = s.array == "none" ? std::vector<std::vector<float>>{} : grid_coverage(stations, s, g);
     out.emplace_back(std::move(s), index++, std::move(coverage), std::move(slopes), g);

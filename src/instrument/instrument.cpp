@@ -2,6 +2,9 @@
 
 #include <Random123/boxmuller.hpp>
 #include <fftw3.h>
+#if defined(__SSE__)
+#include <xmmintrin.h>
+#endif
 
 #include <algorithm>
 #include <cmath>
@@ -89,6 +92,12 @@ void declare_keys(core::Schema& s) {
          .doc = "add a thermal-noise realisation (needs an array)"});
   s.add({.path = p + "wedge", .type = ValueType::boolean, .default_value = false,
          .doc = "remove the foreground wedge k∥ < m(z) k⊥ + buffer on the LOS chunks"});
+  s.add({.path = p + "taper", .type = ValueType::string, .default_value = std::string("none"),
+         .choices = {"none", "gaussian"},
+         .doc = "imaging weight on the uv grid, multiplying signal and noise of each cell: none, or a Gaussian in uv distance"});
+  s.add({.path = p + "taper_fwhm_wavelengths", .type = ValueType::real, .default_value = 1000.0, .unit = "wavelengths",
+         .min = 0.0, .min_exclusive = true,
+         .doc = "FWHM of the Gaussian taper (taper = \"gaussian\") in uv distance; weight 1/2 at half of it"});
   s.add({.path = p + "wedge_angle_deg", .type = ValueType::real, .default_value = 90.0, .unit = "deg",
          .min = 0.0, .max = 90.0, .doc = "angle θ of the wedge (90: horizon)"});
   s.add({.path = p + "wedge_buffer_per_mpc", .type = ValueType::real, .default_value = 0.0, .unit = "1/Mpc",
@@ -252,6 +261,27 @@ Scenario::Scenario(Settings settings, std::uint32_t index, std::vector<std::vect
                      (area * theta_pix * theta_pix * std::sqrt(2.0 * bw[k]));
     sigma_unit_f_[k] = static_cast<float>(sigma_unit_[k]);
   }
+  if (settings_.taper == "gaussian") {
+    // w(u) = exp(−4 ln2 u² / FWHM²), a Gaussian of that FWHM in uv distance u = |m| Δu
+    // wavelengths, Δu = D_c / (N Δ) at this LOS cell (common practice). It factorises
+    // over the two grid axes, so one table per LOS cell holds it.
+    taper_.resize(n_los_ * n_perp_);
+    const double fwhm = settings_.taper_fwhm_wavelengths;
+    for (std::size_t k = 0; k < n_los_; ++k) {
+      const double du = g.distance_mpc[k] / (static_cast<double>(n_perp_) * g.cell_mpc);
+      for (std::size_t i = 0; i < n_perp_; ++i) {
+        const double u = static_cast<double>(core::fft_index(i, n_perp_)) * du;
+        taper_[k * n_perp_ + i] = static_cast<float>(std::exp(-4.0 * std::numbers::ln2 * u * u / (fwhm * fwhm)));
+      }
+    }
+  } else if (settings_.taper != "none") {
+    throw InternalError("instrument: unknown taper '" + settings_.taper + "'");
+  }
+}
+
+double Scenario::taper_weight(std::size_t k, std::size_t i, std::size_t j) const {
+  if (taper_.empty()) return 1.0;
+  return static_cast<double>(taper_[k * n_perp_ + i] * taper_[k * n_perp_ + j]);
 }
 
 core::Array2<float> Scenario::uv_time_s(std::size_t k) const {
@@ -268,15 +298,17 @@ namespace {
 // timing) and run with the new-array execute functions on fresh buffers of the
 // same alignment. The work buffer is LOS-major, [k][i][j] with rows padded to
 // 2(N/2+1) floats, so the transverse transforms are contiguous batched 2D
-// transforms and the LOS transforms are strided batches with a unit-stride
-// vector loop, which FFTW vectorises.
-constexpr std::size_t los_block = 32;
+// transforms. The wedge's LOS transforms run one mode's chunk at a time on a small
+// contiguous scratch (rows of los_row(len) complex, so every row has the alignment
+// of the scratch): a strided batch over whole planes is several times slower for
+// chunk lengths with large prime factors.
+constexpr std::size_t los_block = 64;  // modes gathered per pass over a chunk's planes
+
+std::size_t los_row(std::size_t len) { return (len + 3) / 4 * 4; }  // 32-byte rows
 
 struct ApplyPlans {
   Plan fwd, inv;
-  // (chunk length, modes in the batch, alignment of its start) -> (forward, backward)
-  using LosKey = std::tuple<std::size_t, std::size_t, int>;
-  std::map<LosKey, std::pair<Plan, Plan>> los;
+  std::map<std::size_t, std::pair<Plan, Plan>> los;  // chunk length -> (forward, backward)
 };
 
 std::mutex& plan_mutex() {
@@ -284,10 +316,10 @@ std::mutex& plan_mutex() {
   return m;
 }
 
-const ApplyPlans& apply_plans(std::size_t N, std::size_t L, std::size_t chunk, float* buf) {
+// scratch: an fftwf_alloc'd buffer of at least los_row(chunk) complex (the LOS plans' alignment).
+const ApplyPlans& apply_plans(std::size_t N, std::size_t L, std::size_t chunk, float* buf, fftwf_complex* scratch) {
   using Key = std::array<std::size_t, 4>;
   static std::map<Key, std::unique_ptr<ApplyPlans>> cache;
-  using LosKey = ApplyPlans::LosKey;
   const std::size_t H = N / 2 + 1;
   const Key key{N, L, chunk, static_cast<std::size_t>(fftwf_alignment_of(buf))};
   std::lock_guard<std::mutex> lock(plan_mutex());
@@ -300,53 +332,96 @@ const ApplyPlans& apply_plans(std::size_t N, std::size_t L, std::size_t chunk, f
       Plan(fftwf_plan_many_dft_r2c(2, n, l, buf, embed_r, 1, plane_r, c, embed_c, 1, plane_c, FFTW_ESTIMATE)),
       Plan(fftwf_plan_many_dft_c2r(2, n, l, c, embed_c, 1, plane_c, buf, embed_r, 1, plane_r, FFTW_ESTIMATE)),
       {}});
-  // LOS transforms run on blocks of los_block modes, so one block's chunk stays in
-  // cache through forward, wedge cut and backward. Plans for both 8-byte offsets.
-  const std::size_t M = N * H;
   if (chunk > 0)
     for (std::size_t a = 0; a < L; a += chunk) {
-      const int len = static_cast<int>(std::min(chunk, L - a));
-      for (const std::size_t many : {std::min(los_block, M), M % los_block})
-        for (fftwf_complex* at : {c, c + 1}) {
-          if (many == 0) continue;
-          const LosKey lk{static_cast<std::size_t>(len), many, fftwf_alignment_of(reinterpret_cast<float*>(at))};
-          if (p->los.count(lk)) continue;
-          const int hm = static_cast<int>(many);
-          p->los.emplace(lk, std::pair<Plan, Plan>(Plan(fftwf_plan_many_dft(1, &len, hm, at, nullptr, plane_c, 1, at,
-                                                                         nullptr, plane_c, 1, FFTW_FORWARD, FFTW_ESTIMATE)),
-                                                 Plan(fftwf_plan_many_dft(1, &len, hm, at, nullptr, plane_c, 1, at,
-                                                                         nullptr, plane_c, 1, FFTW_BACKWARD, FFTW_ESTIMATE))));
-        }
+      const std::size_t len = std::min(chunk, L - a);
+      if (p->los.count(len)) continue;
+      const int ln = static_cast<int>(len);
+      p->los.emplace(len, std::pair<Plan, Plan>(Plan(fftwf_plan_dft_1d(ln, scratch, scratch, FFTW_FORWARD, FFTW_ESTIMATE)),
+                                                Plan(fftwf_plan_dft_1d(ln, scratch, scratch, FFTW_BACKWARD, FFTW_ESTIMATE))));
     }
   return *cache.emplace(key, std::move(p)).first->second;
 }
 
-constexpr std::size_t tile = 32;
+constexpr std::size_t tile = 16;
+
+// Copy a tile between the cone ([q][k], q = i N + j, k contiguous) and the LOS-major
+// buffer ([k][i][j], rows of `row` floats). Four q of one row × four k move as one
+// 4×4 register transpose: element-wise copies with either side strided by a page
+// or more cost three times as much. Pure copies, so the bytes do not depend on the path.
+template <bool to_buffer>
+void transpose_tile(float* cone, float* buf, std::size_t N, std::size_t L, std::size_t row, std::size_t q0,
+                    std::size_t q1, std::size_t k0, std::size_t k1) {
+  const std::size_t plane = N * row;
+  const auto scalar = [&](std::size_t q, std::size_t ka) {
+    float* b = buf + (q / N) * row + q % N;
+    float* c = cone + q * L;
+    for (std::size_t k = ka; k < k1; ++k) {
+      if constexpr (to_buffer) b[k * plane] = c[k];
+      else c[k] = b[k * plane];
+    }
+  };
+  std::size_t q = q0;
+  for (; q < q1; q += 4) {
+    if (q + 4 > q1 || q % N + 4 > N) break;
+    std::size_t k = k0;
+#if defined(__SSE__)
+    float* b = buf + (q / N) * row + q % N;
+    float* c = cone + q * L;
+    for (; k + 4 <= k1; k += 4) {
+      if constexpr (to_buffer) {
+        __m128 r0 = _mm_loadu_ps(c + k), r1 = _mm_loadu_ps(c + L + k), r2 = _mm_loadu_ps(c + 2 * L + k),
+               r3 = _mm_loadu_ps(c + 3 * L + k);
+        _MM_TRANSPOSE4_PS(r0, r1, r2, r3);
+        _mm_storeu_ps(b + k * plane, r0);
+        _mm_storeu_ps(b + (k + 1) * plane, r1);
+        _mm_storeu_ps(b + (k + 2) * plane, r2);
+        _mm_storeu_ps(b + (k + 3) * plane, r3);
+      } else {
+        __m128 r0 = _mm_loadu_ps(b + k * plane), r1 = _mm_loadu_ps(b + (k + 1) * plane),
+               r2 = _mm_loadu_ps(b + (k + 2) * plane), r3 = _mm_loadu_ps(b + (k + 3) * plane);
+        _MM_TRANSPOSE4_PS(r0, r1, r2, r3);
+        _mm_storeu_ps(c + k, r0);
+        _mm_storeu_ps(c + L + k, r1);
+        _mm_storeu_ps(c + 2 * L + k, r2);
+        _mm_storeu_ps(c + 3 * L + k, r3);
+      }
+    }
+#endif
+    for (std::size_t d = 0; d < 4; ++d) scalar(q + d, k);
+  }
+  for (; q < q1; ++q) scalar(q, k0);
+}
 
 // cone [i][j][k] -> buf [k][i][j] (rows of `row` floats), in tiles that stay in cache.
 void to_los_major(const float* cone, float* buf, std::size_t N, std::size_t L, std::size_t row) {
   const std::size_t P = N * N;
   for (std::size_t q0 = 0; q0 < P; q0 += tile)
-    for (std::size_t k0 = 0; k0 < L; k0 += tile) {
-      const std::size_t q1 = std::min(P, q0 + tile), k1 = std::min(L, k0 + tile);
-      for (std::size_t k = k0; k < k1; ++k) {
-        float* dst = buf + k * N * row;
-        for (std::size_t q = q0; q < q1; ++q) dst[(q / N) * row + q % N] = cone[q * L + k];
-      }
-    }
+    for (std::size_t k0 = 0; k0 < L; k0 += tile)
+      transpose_tile<true>(const_cast<float*>(cone), buf, N, L, row, q0, std::min(P, q0 + tile), k0,
+                           std::min(L, k0 + tile));
 }
 
 void from_los_major(const float* buf, float* cone, std::size_t N, std::size_t L, std::size_t row) {
   const std::size_t P = N * N;
   for (std::size_t q0 = 0; q0 < P; q0 += tile)
-    for (std::size_t k0 = 0; k0 < L; k0 += tile) {
-      const std::size_t q1 = std::min(P, q0 + tile), k1 = std::min(L, k0 + tile);
-      for (std::size_t q = q0; q < q1; ++q) {
-        const float* src = buf + (q / N) * row + q % N;
-        float* dst = cone + q * L;
-        for (std::size_t k = k0; k < k1; ++k) dst[k] = src[k * N * row];
-      }
-    }
+    for (std::size_t k0 = 0; k0 < L; k0 += tile)
+      transpose_tile<false>(cone, const_cast<float*>(buf), N, L, row, q0, std::min(P, q0 + tile), k0,
+                            std::min(L, k0 + tile));
+}
+}  // namespace
+
+namespace {
+// One Philox block gives the normal pairs of 4 consecutive LOS cells of one mode.
+std::array<float, 8> noise_normals(const rng::CounterRng& rng, std::uint64_t index) {
+  std::array<float, 8> z{};
+  const auto b = rng.bits(index);
+  for (std::size_t w = 0; w < 4; ++w) {
+    const auto r = r123::boxmuller(static_cast<std::uint32_t>(b[w]), static_cast<std::uint32_t>(b[w] >> 32));
+    z[2 * w] = r.x;
+    z[2 * w + 1] = r.y;
+  }
+  return z;
 }
 }  // namespace
 
@@ -355,7 +430,7 @@ void Scenario::apply(core::Array3<float>& cone, const ConeGeometry& g, const rng
   if (cone.shape != g.shape || g.shape[0] != N || g.shape[2] != L)
     throw InternalError("instrument: cone shape does not match the scenario's geometry");
   const std::size_t C = settings_.wedge ? settings_.chunk_cells : 0;
-  // The work buffer is kept per thread between calls: a fresh one costs its page
+  // The work buffers are kept per thread between calls: a fresh one costs its page
   // faults on every cone (as much as a transform). Peak memory is unchanged.
   thread_local std::unique_ptr<float, FftwFree> buffer;
   thread_local std::size_t buffer_size = 0;
@@ -365,93 +440,142 @@ void Scenario::apply(core::Array3<float>& cone, const ConeGeometry& g, const rng
     if (!buffer) throw InternalError("instrument: out of memory for the transform buffer");
     buffer_size = 2 * M * L;
   }
+  thread_local std::unique_ptr<fftwf_complex, FftwFree> scratch;
+  thread_local std::size_t scratch_size = 0;
+  if (C > 0 && scratch_size < los_block * los_row(C)) {
+    scratch.reset();
+    scratch.reset(fftwf_alloc_complex(los_block * los_row(C)));
+    if (!scratch) throw InternalError("instrument: out of memory for the wedge scratch buffer");
+    scratch_size = los_block * los_row(C);
+  }
   float* buf = buffer.get();
   auto* S = reinterpret_cast<std::complex<float>*>(buf);
-  const ApplyPlans& plans = apply_plans(N, L, C, buf);
+  const ApplyPlans& plans = apply_plans(N, L, C, buf, scratch.get());
 
   to_los_major(cone.data.data(), buf, N, L, 2 * H);
   fftwf_execute_dft_r2c(plans.fwd.get(), buf, reinterpret_cast<fftwf_complex*>(buf));
 
-  // One pass over the spectrum: uv mask, noise, and the normalisation of every
-  // inverse transform to come (1/N² transverse, 1/len of the LOS chunk).
-  std::vector<float> scale(L, 1.0f / static_cast<float>(P));
-  if (C > 0)
-    for (std::size_t a = 0; a < L; a += C)
-      for (std::size_t k = a; k < std::min(L, a + C); ++k) scale[k] /= static_cast<float>(std::min(C, L - a));
+  // uv mask and noise on the spectrum, with the normalisation of the inverse
+  // transforms to come (1/N² transverse, and 1/len of a LOS chunk where one is made).
   const rng::CounterRng rng(key, rng::noise_stream(index_));
   const bool noise = settings_.noise && !uv_time_.empty();
   const float sqrt2 = std::sqrt(2.0f);
-  for (std::size_t k0 = 0; k0 < L; k0 += 4) {
-    // Noise is keyed by the global (group of 4 LOS cells, mode) index of the canonical
-    // member of the Hermitian pair, so ñ(-k) = conj ñ(k) whoever draws it; one Philox
-    // call gives 8 32-bit words, i.e. the normal pairs of LOS cells 4m … 4m+3.
-    const std::size_t k1 = std::min(L, k0 + 4);
-    const std::uint64_t group_base = static_cast<std::uint64_t>(k0 / 4) * P;
-    for (std::size_t i = 0; i < N; ++i) {
-      const std::size_t ip = (N - i) % N;
-      for (std::size_t j = 0; j < H; ++j) {
-        const std::size_t full = i * N + j, partner = ip * N + (N - j) % N, mode = i * H + j;
-        if (full == 0) {  // interferometers do not see the mean
+  const float inv_P = 1.0f / static_cast<float>(P);
+  // Noise is keyed by the global (group of 4 LOS cells, mode) index of the canonical
+  // member of the Hermitian pair, so ñ(-k) = conj ñ(k) whoever draws it.
+  struct Mode {
+    std::size_t i, j, full, canon;
+    bool self_conjugate;
+    float im_sign;
+  };
+  const auto mode_of = [N, H](std::size_t mode) {
+    const std::size_t i = mode / H, j = mode % H;
+    const std::size_t full = i * N + j, partner = ((N - i) % N) * N + (N - j) % N;
+    const std::size_t canon = std::min(full, partner);
+    return Mode{i, j, full, canon, full == partner, full == canon ? 1.0f : -1.0f};
+  };
+  // The taper weighs signal and noise alike, as an imaging weight does.
+  const auto tapered = [&](float scale, std::size_t k, const Mode& md) {
+    return taper_.empty() ? scale : scale * (taper_[k * N + md.i] * taper_[k * N + md.j]);
+  };
+  // Observed value of spectrum cell v at LOS cell k; z holds the normals of k's group
+  // (drawn on demand, group tracks which group they belong to).
+  const auto observe = [&](std::complex<float> v, std::size_t k, const Mode& md, float scale,
+                           std::array<float, 8>& z, std::size_t& group) -> std::complex<float> {
+    if (uv_time_.empty()) return v * tapered(scale, k, md);
+    const float t = uv_time_[k * P + md.full];
+    if (!(t > 0)) return 0;  // unobserved: no RNG either
+    if (noise) {
+      if (group != k / 4) {
+        group = k / 4;
+        z = noise_normals(rng, static_cast<std::uint64_t>(group) * P + md.canon);
+      }
+      const float* zk = z.data() + 2 * (k % 4);
+      const float sig = sigma_unit_f_[k] / std::sqrt(t);
+      v += md.self_conjugate ? std::complex<float>(sqrt2 * sig * zk[0], 0.0f)
+                             : std::complex<float>(sig * zk[0], md.im_sign * sig * zk[1]);
+    }
+    return v * tapered(scale, k, md);
+  };
+  constexpr std::size_t no_group = std::numeric_limits<std::size_t>::max();
+
+  if (C == 0) {
+    for (std::size_t k0 = 0; k0 < L; k0 += 4) {
+      const std::size_t k1 = std::min(L, k0 + 4);
+      for (std::size_t m = 0; m < M; ++m) {
+        if (m == 0) {  // interferometers do not see the mean
           for (std::size_t k = k0; k < k1; ++k) S[k * M] = 0;
           continue;
         }
-        if (uv_time_.empty()) {
-          for (std::size_t k = k0; k < k1; ++k) S[k * M + mode] *= scale[k];
-          continue;
-        }
-        const bool self_conjugate = full == partner;
-        const std::size_t canon = std::min(full, partner);
-        const float im_sign = full == canon ? 1.0f : -1.0f;
+        const Mode md = mode_of(m);
         std::array<float, 8> z{};
-        bool drawn = false;
-        for (std::size_t k = k0; k < k1; ++k) {
-          const float t = uv_time_[k * P + full];
-          std::complex<float>& v = S[k * M + mode];
-          if (!(t > 0)) { v = 0; continue; }  // unobserved: no RNG either
-          if (noise) {
-            if (!drawn) {
-              drawn = true;
-              const auto b = rng.bits(group_base + canon);
-              for (std::size_t w = 0; w < 4; ++w) {
-                const auto r = r123::boxmuller(static_cast<std::uint32_t>(b[w]), static_cast<std::uint32_t>(b[w] >> 32));
-                z[2 * w] = r.x;
-                z[2 * w + 1] = r.y;
-              }
-            }
-            const float* zk = z.data() + 2 * (k % 4);
-            const float sig = sigma_unit_f_[k] / std::sqrt(t);
-            v += self_conjugate ? std::complex<float>(sqrt2 * sig * zk[0], 0.0f)
-                                : std::complex<float>(sig * zk[0], im_sign * sig * zk[1]);
-          }
-          v *= scale[k];
-        }
+        std::size_t group = no_group;
+        for (std::size_t k = k0; k < k1; ++k) S[k * M + m] = observe(S[k * M + m], k, md, inv_P, z, group);
       }
     }
-  }
-
-  if (C > 0) {
+  } else {
+    // Wedge: per chunk and mode, the cut removes every k∥ index with |m| < n_cut. A
+    // mode cut entirely (most of large k⊥) is zeroed without transforms, and one not
+    // cut at all is left alone; the rest are gathered, a block of modes at a time, into
+    // the contiguous scratch, observed, transformed along the LOS, cut and put back.
     const double dk_perp = 2.0 * std::numbers::pi / (static_cast<double>(N) * g.cell_mpc);
     std::vector<double> kperp(M);
     for (std::size_t i = 0; i < N; ++i)
       for (std::size_t j = 0; j < H; ++j)
         kperp[i * H + j] = dk_perp * std::hypot(static_cast<double>(core::fft_index(i, N)),
                                                 static_cast<double>(core::fft_index(j, N)));
+    fftwf_complex* T = scratch.get();
+    auto* Tc = reinterpret_cast<std::complex<float>*>(T);
+    std::array<std::size_t, los_block> n_cut{}, row{};
+    std::array<Mode, los_block> modes{};
+    std::array<std::array<float, 8>, los_block> z{};
+    std::array<std::size_t, los_block> group{};
     for (std::size_t a = 0; a < L; a += C) {
-      const std::size_t len = std::min(C, L - a);
+      const std::size_t len = std::min(C, L - a), ld = los_row(len), top = len / 2;  // top = largest |m|
       const double slope = slopes_[a + len / 2];
       const double dk_par = 2.0 * std::numbers::pi / (static_cast<double>(len) * g.cell_mpc);
+      const float scale_los = inv_P / static_cast<float>(len);
+      const auto& [fwd, bwd] = plans.los.at(len);
       for (std::size_t q0 = 0; q0 < M; q0 += los_block) {
         const std::size_t many = std::min(los_block, M - q0);
-        auto* p = reinterpret_cast<fftwf_complex*>(S + a * M + q0);
-        const auto& [fwd, bwd] = plans.los.at({len, many, fftwf_alignment_of(reinterpret_cast<float*>(p))});
-        fftwf_execute_dft(fwd.get(), p, p);
-        for (std::size_t m = 0; m < len; ++m) {
-          const double kpar = dk_par * std::abs(static_cast<double>(core::fft_index(m, len)));
-          std::complex<float>* plane = S + (a + m) * M;
-          for (std::size_t q = q0; q < q0 + many; ++q)
-            if (kpar < slope * kperp[q] + settings_.wedge_buffer_per_mpc) plane[q] = 0;
+        std::size_t rows = 0;
+        for (std::size_t b = 0; b < many; ++b) {
+          const std::size_t q = q0 + b;
+          // |m| is cut when dk_par |m| < m(z) k⊥ + buffer (the same test as the docs'
+          // k∥ < m(z) k⊥ + k_buffer); count the cut |m| = 0, 1, … from a first guess.
+          const double line = slope * kperp[q] + settings_.wedge_buffer_per_mpc;
+          const auto cut = [&](std::size_t f) { return dk_par * static_cast<double>(f) < line; };
+          std::size_t n = static_cast<std::size_t>(std::clamp(std::ceil(line / dk_par), 0.0, static_cast<double>(top + 1)));
+          while (n > 0 && !cut(n - 1)) --n;
+          while (n <= top && cut(n)) ++n;
+          n_cut[b] = q == 0 ? top + 1 : n;  // k⊥ = 0: interferometers do not see the mean
+          modes[b] = mode_of(q);
+          group[b] = no_group;
+          row[b] = n_cut[b] > 0 && n_cut[b] <= top ? rows++ : los_block;
         }
-        fftwf_execute_dft(bwd.get(), p, p);
+        for (std::size_t k = a; k < a + len; ++k) {
+          std::complex<float>* plane = S + k * M + q0;
+          for (std::size_t b = 0; b < many; ++b) {
+            if (n_cut[b] > top) plane[b] = 0;
+            else if (n_cut[b] == 0) plane[b] = observe(plane[b], k, modes[b], inv_P, z[b], group[b]);
+            else Tc[row[b] * ld + (k - a)] = observe(plane[b], k, modes[b], scale_los, z[b], group[b]);
+          }
+        }
+        for (std::size_t b = 0; b < many; ++b) {
+          if (row[b] == los_block) continue;
+          fftwf_complex* r = T + row[b] * ld;
+          fftwf_execute_dft(fwd.get(), r, r);
+          std::complex<float>* rc = Tc + row[b] * ld;
+          std::fill(rc, rc + n_cut[b], std::complex<float>(0));
+          std::fill(rc + (len - n_cut[b] + 1), rc + len, std::complex<float>(0));
+          fftwf_execute_dft(bwd.get(), r, r);
+        }
+        if (rows > 0)
+          for (std::size_t k = a; k < a + len; ++k) {
+            std::complex<float>* plane = S + k * M + q0;
+            for (std::size_t b = 0; b < many; ++b)
+              if (row[b] != los_block) plane[b] = Tc[row[b] * ld + (k - a)];
+          }
       }
     }
   }
@@ -527,6 +651,8 @@ std::vector<Scenario> scenarios_from(const core::Config& c, const std::function<
     s.wedge = c.boolean(key(name, "wedge"));
     s.wedge_angle_deg = c.real(key(name, "wedge_angle_deg"));
     s.wedge_buffer_per_mpc = c.real(key(name, "wedge_buffer_per_mpc"));
+    s.taper = c.string(key(name, "taper"));
+    s.taper_fwhm_wavelengths = c.real(key(name, "taper_fwhm_wavelengths"));
     if (s.noise && s.array == "none")
       throw ConfigError(c.location(key(name, "noise")) + ": " + key(name, "noise") +
                         " = true needs an array (array = \"builtin\" or \"csv\"), not array = \"none\"");
@@ -561,7 +687,7 @@ std::vector<Scenario> scenarios_from(const core::Config& c, const std::function<
     for (const char* leaf : {"array", "array_file", "stations", "station_diameter_m", "core_radius_m",
                              "outer_radius_m", "latitude_deg", "declination_deg", "hours_per_day", "integration_s",
                              "observing_hours", "receiver_temperature_K", "noise", "wedge", "wedge_angle_deg",
-                             "wedge_buffer_per_mpc"})
+                             "wedge_buffer_per_mpc", "taper", "taper_fwhm_wavelengths"})
       s.attributes.emplace_back(leaf, c.value(key(name, leaf)));
     auto coverage = s.array == "none" ? std::vector<std::vector<float>>{} : grid_coverage(stations, s, g);
     out.emplace_back(std::move(s), index++, std::move(coverage), std::move(slopes), g);

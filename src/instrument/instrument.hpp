@@ -52,6 +52,8 @@ struct Settings {
   bool noise = false, wedge = false;
   double wedge_angle_deg = 90.0, wedge_buffer_per_mpc = 0.0;
   std::size_t chunk_cells = 0;  // wedge is cut on LOS chunks of this many cells
+  std::string taper = "none";  // none | gaussian: imaging weight on the uv grid
+  double taper_fwhm_wavelengths = 1000.0;
   std::vector<std::pair<std::string, core::Value>> attributes;
 };
 
@@ -73,6 +75,8 @@ class Scenario {
   std::vector<std::pair<std::string, core::Value>> attributes() const { return settings_.attributes; }
   /// Observing seconds per transverse Fourier cell (n_perp × n_perp, fftfreq order) at a LOS cell.
   core::Array2<float> uv_time_s(std::size_t los_cell) const;
+  /// Weight of the uv taper on transverse Fourier cell (i, j) (fftfreq order) at a LOS cell (1 without one).
+  double taper_weight(std::size_t los_cell, std::size_t i, std::size_t j) const;
   /// rms (mK) of the real part of the noise on DFT mode (i,j) of LOS cell k, DFT = Σ_x T(x) e^{-ik·x}.
   double noise_sigma_mK(std::size_t los_cell, double uv_time_s) const;
   void apply(core::Array3<float>& cone_mK, const ConeGeometry& geometry, const rng::EntryKey& key) const;
@@ -84,6 +88,8 @@ class Scenario {
   std::vector<float> uv_time_;  // [LOS cell][uv cell]: apply works on LOS-major planes
   std::vector<double> slopes_, sigma_unit_;  // sigma_unit_: σ·sqrt(t) per LOS cell
   std::vector<float> sigma_unit_f_;          // the same in float for the noise loop
+  // Gaussian taper, separable on the grid: weight(i, j) = taper_[k][i] · taper_[k][j]; empty = none.
+  std::vector<float> taper_;
 };
 
 /// Build every [scenarios.*] of the campaign in file order (uv gridding happens here, once).

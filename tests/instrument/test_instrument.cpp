@@ -276,6 +276,101 @@ TEST(Wedge, ModesBelowLineZeroAboveUntouched) {
   EXPECT_GT(above, 100);
 }
 
+// Taper: on a cone that is one transverse plane wave in every LOS cell, a Gaussian
+// uv taper scales that mode by w(u) = exp(−4 ln2 u²/FWHM²) (a Gaussian of that FWHM,
+// common practice) at its uv distance u = |m| D_c / (N Δ) wavelengths (docs/instrument.md),
+// evaluated per LOS cell, and leaves its shape alone; taper = "none" keeps it whole.
+TEST(Taper, GaussianScalesAPlaneWaveByItsWeight) {
+  const std::size_t N = 32, L = 16;
+  const double cell = 3.0, fwhm = 800.0;
+  const auto g = make_geometry(N, L, cell, 8.0);
+  const auto sc = scenarios_from(config("[scenarios.t]\narray = \"none\"\ntaper = \"gaussian\"\n"
+                                        "taper_fwhm_wavelengths = 800.0\n"
+                                        "[scenarios.plain]\narray = \"none\"\n"),
+                                 toy_hubble, g);
+  ASSERT_EQ(sc.size(), 2u);
+  const Scenario& t = sc[0].name() == "t" ? sc[0] : sc[1];
+  const Scenario& p = sc[0].name() == "t" ? sc[1] : sc[0];
+  ASSERT_EQ(t.settings().taper, "gaussian");
+  ASSERT_EQ(p.settings().taper, "none");
+  for (const auto& [mi, mj] : std::vector<std::pair<long, long>>{{3, 4}, {-7, 2}, {0, 9}}) {
+    core::Array3<float> wave(N, N, L);
+    for (std::size_t i = 0; i < N; ++i)
+      for (std::size_t j = 0; j < N; ++j)
+        for (std::size_t k = 0; k < L; ++k)
+          wave(i, j, k) = static_cast<float>(
+              10.0 * std::cos(2 * std::numbers::pi * static_cast<double>(mi * static_cast<long>(i) + mj * static_cast<long>(j)) / N));
+    auto tapered = wave, plain = wave;
+    t.apply(tapered, g, {1, 0, 0});
+    p.apply(plain, g, {1, 0, 0});
+    double w_min = 1, w_max = 0;
+    for (std::size_t k = 0; k < L; ++k) {
+      const double u = std::hypot(static_cast<double>(mi), static_cast<double>(mj)) * g.distance_mpc[k] / (N * cell);
+      const double w = std::exp(-4 * std::log(2.0) * u * u / (fwhm * fwhm));
+      w_min = std::min(w_min, w);
+      w_max = std::max(w_max, w);
+      const std::size_t i = static_cast<std::size_t>((mi + static_cast<long>(N)) % static_cast<long>(N));
+      const std::size_t j = static_cast<std::size_t>((mj + static_cast<long>(N)) % static_cast<long>(N));
+      EXPECT_NEAR(t.taper_weight(k, i, j), w, 1e-6 * w);  // float tables: rounding
+      for (std::size_t i2 = 0; i2 < N; ++i2)
+        for (std::size_t j2 = 0; j2 < N; ++j2) {
+          // 1e-4 mK on 10 mK: float rounding of two 2D transforms
+          EXPECT_NEAR(tapered(i2, j2, k), w * wave(i2, j2, k), 1e-4) << "mode " << mi << "," << mj << " k " << k;
+          EXPECT_NEAR(plain(i2, j2, k), wave(i2, j2, k), 1e-4);
+        }
+    }
+    // the weights tested are far from 0 and 1, and vary along the LOS (Δu ∝ D_c)
+    EXPECT_GT(w_min, 0.02);
+    EXPECT_LT(w_max, 0.9);
+    EXPECT_GT(w_max - w_min, 1e-3);
+  }
+}
+
+// The taper weighs the noise as it does the signal: the same noise realisation (same
+// entry, same scenario index) with and without the taper differs, mode by mode of each
+// LOS plane's 2D transform, by the taper weight (docs/instrument.md).
+TEST(Taper, WeighsTheNoiseToo) {
+  const std::size_t N = 16, L = 8;
+  const auto g = make_geometry(N, L, 3.0, 8.0);
+  std::vector<std::vector<float>> cover(L, std::vector<float>(N * N, 1e5f));
+  Settings tapered_settings = noise_settings();
+  tapered_settings.taper = "gaussian";
+  tapered_settings.taper_fwhm_wavelengths = 600.0;
+  const Scenario plain(noise_settings(), 0, cover, std::vector<double>(L, 0.0), g);
+  const Scenario tapered(tapered_settings, 0, cover, std::vector<double>(L, 0.0), g);
+  core::Array3<float> x(N, N, L, 0.0f), y(N, N, L, 0.0f);
+  plain.apply(x, g, {1, 2, 3});
+  tapered.apply(y, g, {1, 2, 3});
+  const std::size_t H = N / 2 + 1;
+  std::vector<float> plane(N * N);
+  std::vector<std::complex<float>> a(N * H), b(N * H);
+  const auto fft2 = [&](const core::Array3<float>& c, std::size_t k, std::vector<std::complex<float>>& out) {
+    for (std::size_t q = 0; q < N * N; ++q) plane[q] = c(q / N, q % N, k);
+    fftwf_plan pl = fftwf_plan_dft_r2c_2d(static_cast<int>(N), static_cast<int>(N), plane.data(),
+                                          reinterpret_cast<fftwf_complex*>(out.data()), FFTW_ESTIMATE);
+    fftwf_execute(pl);
+    fftwf_destroy_plan(pl);
+  };
+  int weighed = 0;
+  for (std::size_t k = 0; k < L; ++k) {
+    fft2(x, k, a);
+    fft2(y, k, b);
+    double peak = 0;
+    for (const auto& v : a) peak = std::max(peak, static_cast<double>(std::abs(v)));
+    ASSERT_GT(peak, 0);
+    for (std::size_t i = 0; i < N; ++i)
+      for (std::size_t j = 0; j < H; ++j) {
+        const double u = std::hypot(static_cast<double>(core::fft_index(i, N)), static_cast<double>(core::fft_index(j, N))) *
+                         g.distance_mpc[k] / (static_cast<double>(N) * 3.0);
+        const double w = std::exp(-4 * std::log(2.0) * u * u / (600.0 * 600.0));  // Gaussian of FWHM 600 (common practice)
+        const auto va = a[i * H + j], vb = b[i * H + j];
+        EXPECT_LT(std::abs(vb - static_cast<float>(w) * va), 1e-5 * peak);  // float rounding of four transforms
+        if (std::abs(va) > 0.1 * peak && w < 0.9) ++weighed;
+      }
+  }
+  EXPECT_GT(weighed, 50);  // the check saw many noise modes with a weight well below 1
+}
+
 TEST(Units, SlicesAndChunks) {
   const auto g = make_geometry(8, 200, 2.0, 7.0);
   auto c = config("[slices]\ncadence_MHz = 2.0\nwidth_MHz = 0.5\n[chunks]\nbandwidth_MHz = 4.0\n");
@@ -311,6 +406,14 @@ TEST(BadInput, OneLineErrorsNamingTheKey) {
   EXPECT_NE(msg.find("slices.cadence_MHz"), std::string::npos) << msg;
   msg = error_of([&] { config("[scenarios.x]\nlatitude_deg = 120\n"); });
   EXPECT_NE(msg.find("scenarios.x.latitude_deg"), std::string::npos) << msg;
+  msg = error_of([&] { config("[scenarios.x]\ntaper = \"cosine\"\n"); });
+  EXPECT_NE(msg.find("scenarios.x.taper"), std::string::npos) << msg;
+  EXPECT_NE(msg.find("gaussian"), std::string::npos) << msg;  // names what is allowed
+  for (const char* bad : {"0.0", "-250.0", "\"wide\""}) {
+    msg = error_of([&] { config(std::string("[scenarios.x]\ntaper = \"gaussian\"\ntaper_fwhm_wavelengths = ") + bad + "\n"); });
+    EXPECT_NE(msg.find("scenarios.x.taper_fwhm_wavelengths"), std::string::npos) << msg;
+    EXPECT_EQ(msg.find('\n'), std::string::npos) << msg;
+  }
   msg = error_of([&] { builtin_array(200, 20.0, 40.0, 30.0); });
   EXPECT_NE(msg.find("overlapping"), std::string::npos) << msg;
   for (const std::string& m : std::vector<std::string>{msg}) EXPECT_EQ(m.find('\n'), std::string::npos);

@@ -79,7 +79,7 @@ class Config {
 
   bool has(std::string_view path) const;        // given in the file (or overridden)
   bool has_table(std::string_view path) const;  // table present
-  std::vector<std::string> table_names(std::string_view path) const;  // sub-tables in file order
+  std::vector<std::string> table_names(std::string_view path) const;  // sub-tables, by name (toml++ keeps tables sorted)
   std::size_t array_size(std::string_view path) const;               // length of [[path]]
 
   double real(std::string_view path) const;

@@ -50,7 +50,7 @@ struct ManifestRow {
 
 struct Manifest {
   std::filesystem::path source;
-  std::vector<std::string> param_names;  // the campaign's [parameters.*] in file order
+  std::vector<std::string> param_names;  // the campaign's [parameters.*] by name
   std::vector<ManifestRow> rows;
   Layout layout;
   /// Row problems found while reading the manifest (one line each); rows with a

@@ -92,7 +92,7 @@ class Scenario {
   std::vector<float> taper_;
 };
 
-/// Build every [scenarios.*] of the campaign in file order (uv gridding happens here, once).
+/// Build every [scenarios.*] of the campaign in name order (uv gridding happens here, once).
 std::vector<Scenario> scenarios_from(const core::Config& config, const cosmo::Cosmology& cosmology,
                                      const ConeGeometry& geometry);
 /// Same with H(z) (km/s/Mpc) given as a function (tests, tools without a Cosmology).

@@ -275,11 +275,10 @@ PlanReport plan(const Campaign& c, const PlanOptions& options) {
         (chunks.empty() ? "" : " (" + std::to_string(chunks.front().los_end - chunks.front().los_begin) + " cells)"));
 
     // Scenarios: arrays, CSV files, noise and wedge settings are checked as they are built.
-    std::vector<instrument::Scenario> scen;
-    attempt([&] { scen = instrument::scenarios_from(fid_cfg, cosmology, geo); });
-    for (const auto& s : scen) {
-      const auto& st = s.settings();
-      say("scenario " + s.name() + ": array " + st.array + (st.noise ? ", noise " + fmt(st.observing_hours) + " h" : ", no noise") +
+    std::vector<instrument::Settings> scen;
+    attempt([&] { scen = instrument::scenario_settings_from(fid_cfg, cosmology, geo); });
+    for (const auto& st : scen) {
+      say("scenario " + st.name + ": array " + st.array + (st.noise ? ", noise " + fmt(st.observing_hours) + " h" : ", no noise") +
           (st.wedge ? ", wedge " + fmt(st.wedge_angle_deg) + "°" : ", no wedge"));
     }
     if (cfg.table_names("scenarios").empty())

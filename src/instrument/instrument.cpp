@@ -601,20 +601,33 @@ std::vector<std::vector<float>> grid_coverage(const std::vector<Station>& st, co
     const double ha = omega * ((static_cast<double>(t) + 0.5) * s.integration_s - 0.5 * track_s);
     snaps[t] = snapshot_uv_m(st, s.latitude_deg, s.declination_deg, ha);
   }
+  // Every snapshot's baselines in two flat arrays: the loop below runs over them once per LOS cell.
+  std::vector<double> bu, bv;
+  for (const auto& snap : snaps)
+    for (const auto& b : snap) {
+      bu.push_back(b[0]);
+      bv.push_back(b[1]);
+    }
+  // floor(x + 0.5) without a libm call (exact for |x| < 2^63), and fftfreq index without a division.
+  const auto nearest = [](double x) {
+    const double t = x + 0.5;
+    auto m = static_cast<long>(t);
+    if (static_cast<double>(m) > t) --m;
+    return m;
+  };
+  const auto n_l = static_cast<long>(N);
+  const auto idx = [n_l](long a) { return static_cast<std::size_t>(a < 0 ? a + n_l : a); };
   std::vector<std::vector<float>> out(L, std::vector<float>(N * N, 0.0f));
   for (std::size_t k = 0; k < L; ++k) {
     // Grid cells per metre of baseline: (ν/c) · (N Δ / D_c), since du = D_c / (N Δ).
     const double scale = g.freq_MHz[k] * 1e6 / c_m_s * static_cast<double>(N) * g.cell_mpc / g.distance_mpc[k];
-    auto& cell = out[k];
-    for (const auto& snap : snaps)
-      for (const auto& b : snap) {
-        // floor(x + 0.5), not lround: several times faster, and the conjugate cell is filled explicitly.
-        const auto m1 = static_cast<long>(std::floor(b[0] * scale + 0.5)), m2 = static_cast<long>(std::floor(b[1] * scale + 0.5));
-        if (std::abs(m1) > half || std::abs(m2) > half) continue;
-        const auto idx = [N](long a) { return static_cast<std::size_t>((a + static_cast<long>(N)) % static_cast<long>(N)); };
-        cell[idx(m1) * N + idx(m2)] += per_visit;
-        cell[idx(-m1) * N + idx(-m2)] += per_visit;  // the conjugate visibility
-      }
+    float* cell = out[k].data();
+    for (std::size_t b = 0; b < bu.size(); ++b) {
+      const long m1 = nearest(bu[b] * scale), m2 = nearest(bv[b] * scale);
+      if (m1 > half || m1 < -half || m2 > half || m2 < -half) continue;
+      cell[idx(m1) * N + idx(m2)] += per_visit;
+      cell[idx(-m1) * N + idx(-m2)] += per_visit;  // the conjugate visibility
+    }
   }
   return out;
 }
@@ -631,8 +644,10 @@ std::size_t chunk_cells(const core::Config& c, const ConeGeometry& g) {
   return n;
 }
 
-std::vector<Scenario> scenarios_from(const core::Config& c, const std::function<double(double)>& hubble,
-                                     const ConeGeometry& g) {
+namespace {
+// grid = false checks and builds everything but the uv coverage (spinflip plan's checks).
+std::vector<Scenario> build_scenarios(const core::Config& c, const std::function<double(double)>& hubble,
+                                      const ConeGeometry& g, bool grid) {
   check_geometry(g);
   std::vector<Scenario> out;
   std::uint32_t index = 0;
@@ -689,9 +704,22 @@ std::vector<Scenario> scenarios_from(const core::Config& c, const std::function<
                              "observing_hours", "receiver_temperature_K", "noise", "wedge", "wedge_angle_deg",
                              "wedge_buffer_per_mpc", "taper", "taper_fwhm_wavelengths"})
       s.attributes.emplace_back(leaf, c.value(key(name, leaf)));
-    auto coverage = s.array == "none" ? std::vector<std::vector<float>>{} : grid_coverage(stations, s, g);
+    auto coverage = s.array == "none" || !grid ? std::vector<std::vector<float>>{} : grid_coverage(stations, s, g);
     out.emplace_back(std::move(s), index++, std::move(coverage), std::move(slopes), g);
   }
+  return out;
+}
+}  // namespace
+
+std::vector<Scenario> scenarios_from(const core::Config& c, const std::function<double(double)>& hubble,
+                                     const ConeGeometry& g) {
+  return build_scenarios(c, hubble, g, true);
+}
+
+std::vector<Settings> scenario_settings_from(const core::Config& c, const std::function<double(double)>& hubble,
+                                             const ConeGeometry& g) {
+  std::vector<Settings> out;
+  for (const auto& s : build_scenarios(c, hubble, g, false)) out.push_back(s.settings());
   return out;
 }
 

@@ -100,6 +100,14 @@ std::vector<Scenario> scenarios_from(const core::Config& config,
                                      const std::function<double(double)>& hubble_km_s_mpc,
                                      const ConeGeometry& geometry);
 
+/// The scenarios' settings, checked exactly as scenarios_from checks them, without the uv
+/// gridding (the bulk of its cost): what `spinflip plan` needs.
+std::vector<Settings> scenario_settings_from(const core::Config& config, const cosmo::Cosmology& cosmology,
+                                             const ConeGeometry& geometry);
+std::vector<Settings> scenario_settings_from(const core::Config& config,
+                                             const std::function<double(double)>& hubble_km_s_mpc,
+                                             const ConeGeometry& geometry);
+
 /// A slice (averaged over its channel width) or a chunk.
 struct Unit { std::size_t los_begin, los_end; double freq_MHz, z; };
 std::vector<Unit> slice_units(const core::Config& config, const ConeGeometry& geometry);

@@ -65,9 +65,14 @@ std::vector<double> axis_k2(std::size_t n, double cell) {
 const double nan = std::numeric_limits<double>::quiet_NaN();
 
 // ---------------------------------------------------------------- spherical
+// Along the half axis |k| grows with the index, so within one row (i, j) each bin is a
+// run of consecutive modes: row r's modes of bin b are [seg[r(B+1) + b], seg[r(B+1) + b + 1]).
+// The measurement then reads only the spectrum (no per-mode table) and computes |k|^D
+// from the row's k0² + k1² and the axis table, exactly as the table was built.
 struct SphericalTable {
-  std::vector<std::int32_t> bin;  // per half-grid mode, -1 outside every bin (and k = 0)
-  std::vector<float> kpow;        // |k|^D per half-grid mode (for delta2), 0 outside the bins
+  std::vector<std::uint32_t> seg;  // rows × (bins + 1) run starts
+  std::vector<double> row_k2;      // k0² + k1² per row
+  std::vector<double> axis_k2;     // k2² along the half axis
   std::vector<double> n_modes, k_mean;
 };
 
@@ -106,17 +111,26 @@ class PowerKernel final : public Kernel {
     std::vector<double> p(bins(), 0.0), dk(bins(), 0.0);
     std::vector<double> w(d.h2);
     for (std::size_t k = 0; k < d.h2; ++k) w[k] = half_plane_weight(k, d.n2);
-    const float* fr = reinterpret_cast<const float*>(f);
-    const std::int32_t* bin = t->bin.data();
-    const float* kp = t->kpow.data();
-    for (std::size_t row = 0, idx = 0; row < d.n0 * d.n1; ++row)
-      for (std::size_t k = 0; k < d.h2; ++k, ++idx) {
-        const std::int32_t b = bin[idx];
-        if (b < 0) continue;
-        const double p2 = w[k] * (double(fr[2 * idx]) * fr[2 * idx] + double(fr[2 * idx + 1]) * fr[2 * idx + 1]);
-        p[b] += p2;
-        dk[b] += p2 * kp[idx];  // |k|² (2D) or |k|³ (3D)
+    const std::size_t nb = bins();
+    const double* ax = t->axis_k2.data();
+    for (std::size_t row = 0; row < d.n0 * d.n1; ++row) {
+      const std::uint32_t* seg = t->seg.data() + row * (nb + 1);
+      if (seg[0] == seg[nb]) continue;
+      const float* fr = reinterpret_cast<const float*>(f + row * d.h2);
+      const double base = t->row_k2[row];
+      for (std::size_t b = 0; b < nb; ++b) {
+        double pa[2] = {0.0, 0.0}, da[2] = {0.0, 0.0};  // two chains: the adds do not wait on each other
+        for (std::size_t k = seg[b]; k < seg[b + 1]; ++k) {
+          const double p2 = w[k] * (double(fr[2 * k]) * fr[2 * k] + double(fr[2 * k + 1]) * fr[2 * k + 1]);
+          const double kk = std::sqrt(base + ax[k]);
+          const auto kp = static_cast<float>(two_d ? kk * kk : kk * kk * kk);  // |k|² (2D) or |k|³ (3D)
+          pa[k & 1] += p2;
+          da[k & 1] += p2 * kp;
+        }
+        p[b] += pa[0] + pa[1];
+        dk[b] += da[0] + da[1];
       }
+    }
     // P̂ = ΔV² |F|² / V = ΔV |F|² / N (DESIGN.md §6); delta2 = |k|^D P̂ / (2π) or (2π²).
     const double dv = cell_volume(g), n = static_cast<double>(g.n_cells());
     const double delta_norm = two_d ? 1.0 / (2.0 * M_PI) : 1.0 / (2.0 * M_PI * M_PI);
@@ -147,25 +161,35 @@ class PowerKernel final : public Kernel {
     return cache_.get(key_of(g), [&] {
       const Dims d = dims_of(g);
       SphericalTable t;
-      t.bin.assign(d.n0 * d.n1 * d.h2, -1);
-      t.kpow.assign(d.n0 * d.n1 * d.h2, 0.0f);
-      t.n_modes.assign(bins(), 0.0);
-      t.k_mean.assign(bins(), 0.0);
+      const std::size_t nb = bins();
+      t.seg.assign(d.n0 * d.n1 * (nb + 1), 0);
+      t.row_k2.resize(d.n0 * d.n1);
+      t.n_modes.assign(nb, 0.0);
+      t.k_mean.assign(nb, 0.0);
       const auto k0 = axis_k2(d.n0, d.c0), k1 = axis_k2(d.n1, d.c1), k2 = axis_k2(d.n2, d.c2);
-      std::size_t idx = 0;
-      for (std::size_t i = 0; i < d.n0; ++i)
-        for (std::size_t j = 0; j < d.n1; ++j)
-          for (std::size_t k = 0; k < d.h2; ++k, ++idx) {
-            const double kk = std::sqrt(k0[i] + k1[j] + k2[k]);
-            if (kk <= 0.0 || kk < edges_.front() || kk >= edges_.back()) continue;
-            const auto b = static_cast<std::size_t>(std::upper_bound(edges_.begin(), edges_.end(), kk) -
-                                                    edges_.begin()) - 1;
-            t.bin[idx] = static_cast<std::int32_t>(b);
-            t.kpow[idx] = static_cast<float>(d.two_d ? kk * kk : kk * kk * kk);
+      t.axis_k2.assign(k2.begin(), k2.begin() + static_cast<std::ptrdiff_t>(d.h2));
+      for (std::size_t i = 0, row = 0; i < d.n0; ++i)
+        for (std::size_t j = 0; j < d.n1; ++j, ++row) {
+          const double base = k0[i] + k1[j];
+          t.row_k2[row] = base;
+          std::uint32_t* seg = t.seg.data() + row * (nb + 1);
+          long last = -1;
+          for (std::size_t k = 0; k < d.h2; ++k) {
+            const double kk = std::sqrt(base + k2[k]);
+            // Run code: -1 below the bins (and k = 0), nb above them, else the bin.
+            long code = -1;
+            if (kk >= edges_.back()) code = static_cast<long>(nb);
+            else if (kk > 0.0 && kk >= edges_.front())
+              code = std::upper_bound(edges_.begin(), edges_.end(), kk) - edges_.begin() - 1;
+            if (code < last) throw InternalError("power spectrum: |k| is not monotone along the half axis");
+            last = code;
+            for (long b = code + 1; b <= static_cast<long>(nb); ++b) seg[b] = static_cast<std::uint32_t>(k + 1);
+            if (code < 0 || code >= static_cast<long>(nb)) continue;
             const double w = half_plane_weight(k, d.n2);
-            t.n_modes[b] += w;
-            t.k_mean[b] += w * kk;
+            t.n_modes[static_cast<std::size_t>(code)] += w;
+            t.k_mean[static_cast<std::size_t>(code)] += w * kk;
           }
+        }
       for (std::size_t b = 0; b < bins(); ++b)
         if (t.n_modes[b] > 0) t.k_mean[b] /= t.n_modes[b];
       return t;

@@ -1,10 +1,13 @@
 // 2D wavelet scattering (DESIGN.md §6, exact definition there). Filters are
 // built once per slice shape. With `crop`, each convolution keeps only the
 // Fourier box where |ψ̂| > 1e-7 max|ψ̂| (shifted to the box centre, which only
-// changes the phase) and is inverted on a smaller grid, oversampled so that
-// means over the coarse samples match the full-grid means to the contract's
-// tolerance (checked against numpy in tests/stats/check_scattering.py).
+// changes the phase) and is inverted on a smaller power-of-two grid, oversampled
+// so that means over the coarse samples match the full-grid means to the
+// contract's tolerance (checked against numpy in tests/stats/check_scattering.py).
+// Inverse transforms run on rows padded past a power of two (cache sets) and, when
+// the box leaves rows or columns of the grid empty, in two 1D passes that skip them.
 #include <algorithm>
+#include <cmath>
 #include <numeric>
 
 #include "fft/fft.hpp"
@@ -45,14 +48,11 @@ long signed_index(std::size_t i, std::size_t n) {
   return i < (n + 1) / 2 ? static_cast<long>(i) : static_cast<long>(i) - static_cast<long>(n);
 }
 
-/// Smallest 2^a 3^b 5^c ≥ x (a fast FFT size), or n when that is not smaller than n.
-std::size_t nice_size(std::size_t x, std::size_t n) {
-  std::size_t best = n;
-  for (std::size_t p2 = 1; p2 < 2 * n; p2 *= 2)
-    for (std::size_t p3 = p2; p3 < 2 * n; p3 *= 3)
-      for (std::size_t p5 = p3; p5 < 2 * n; p5 *= 5)
-        if (p5 >= x && p5 < best) best = p5;
-  return best;
+/// Smallest power of two ≥ x, or n when that is not smaller than n.
+std::size_t grid_size(std::size_t x, std::size_t n) {
+  std::size_t g = 1;
+  while (g < x) g *= 2;
+  return g < n ? g : n;
 }
 
 /// Smallest circular arc [start, start+len) of 0..n-1 covering every flagged index.
@@ -134,10 +134,9 @@ Bank build_bank(const ScatteringParams& p, std::size_t n1, std::size_t n2) {
         f.w2 = a2.second;
         f.c1 = f.w1 == n1 ? 0 : f.b1 + static_cast<long>(f.w1 / 2);
         f.c2 = f.w2 == n2 ? 0 : f.b2 + static_cast<long>(f.w2 / 2);
-        f.m1 = f.w1 == n1 ? n1 : nice_size(std::max({f.w1, static_cast<std::size_t>(fac * e1.second) + 1, minsz}), n1);
-        f.m2 = f.w2 == n2 ? n2 : nice_size(std::max({f.w2, static_cast<std::size_t>(fac * e2.second) + 1, minsz}), n2);
-        if (f.m1 == n1) f.w1 = n1, f.b1 = 0, f.c1 = 0;  // nothing to gain: use the whole axis
-        if (f.m2 == n2) f.w2 = n2, f.b2 = 0, f.c2 = 0;
+        f.m1 = f.w1 == n1 ? n1 : grid_size(std::max({f.w1, static_cast<std::size_t>(fac * static_cast<double>(e1.second)) + 1, minsz}), n1);
+        f.m2 = f.w2 == n2 ? n2 : grid_size(std::max({f.w2, static_cast<std::size_t>(fac * static_cast<double>(e2.second)) + 1, minsz}), n2);
+        // On a full axis the box still tells the two-pass inverse which rows/columns are empty.
       }
       f.value.resize(f.w1 * f.w2);
       for (std::size_t i = 0; i < f.w1; ++i)
@@ -163,11 +162,28 @@ Bank build_bank(const ScatteringParams& p, std::size_t n1, std::size_t n2) {
           need1 = std::max(need1, need(g.b1, g.w1, bank.n1));
           need2 = std::max(need2, need(g.b2, g.w2, bank.n2));
         }
-      f.u1 = need1 >= bank.n1 ? bank.n1 : nice_size(need1, bank.n1);
-      f.u2 = need2 >= bank.n2 ? bank.n2 : nice_size(need2, bank.n2);
+      f.u1 = need1 >= bank.n1 ? bank.n1 : grid_size(need1, bank.n1);
+      f.u2 = need2 >= bank.n2 ? bank.n2 : grid_size(need2, bank.n2);
     }
   return bank;
 }
+
+/// Complex elements added to each row of a work grid: rows of a power-of-two length laid
+/// end to end put a column's elements in a few cache sets, and FFTW_ESTIMATE plans for
+/// 256 × 256 then ran ~10× slower than with padded rows (bench_stats prints both).
+constexpr std::size_t row_pad = 8;
+
+/// Scratch reused across calls on one thread (fresh pages fault on every first touch).
+struct Scratch {
+  fft::Buffer<cf> half, work;
+  fft::Buffer<float> u1;
+  static void fit(fft::Buffer<cf>& b, std::size_t n) {
+    if (b.size() < n) b = fft::Buffer<cf>(n);
+  }
+  static void fit(fft::Buffer<float>& b, std::size_t n) {
+    if (b.size() < n) b = fft::Buffer<float>(n);
+  }
+};
 
 /// Full spectrum of a real p1 × p2 field (r2c, then the mirror half by Hermitian symmetry),
 /// so the per-filter gathers below are plain strided copies.
@@ -176,32 +192,109 @@ struct Spectrum {
   fft::Buffer<cf> data;
 };
 
-Spectrum forward(const float* real, std::size_t p1, std::size_t p2) {
+void forward(const float* real, std::size_t p1, std::size_t p2, Scratch& scratch, Spectrum& s) {
   const std::size_t h2 = p2 / 2 + 1;
-  fft::Buffer<cf> half(p1 * h2);
-  fft::r2c_2d(p1, p2, real, half.data());
-  Spectrum s{p1, p2, fft::Buffer<cf>(p1 * p2)};
+  Scratch::fit(scratch.half, p1 * h2);
+  Scratch::fit(s.data, p1 * p2);
+  s.p1 = p1;
+  s.p2 = p2;
+  fft::r2c_2d(p1, p2, real, scratch.half.data());
   for (std::size_t a = 0; a < p1; ++a) {
-    const cf* src = half.data() + a * h2;
-    const cf* mirror = half.data() + ((p1 - a) % p1) * h2;
+    const cf* src = scratch.half.data() + a * h2;
+    const cf* mirror = scratch.half.data() + ((p1 - a) % p1) * h2;
     cf* dst = s.data.data() + a * p2;
     for (std::size_t b = 0; b < h2; ++b) dst[b] = src[b];
     for (std::size_t b = h2; b < p2; ++b) dst[b] = std::conj(mirror[p2 - b]);
   }
-  return s;
 }
 
-/// |x⋆ψ| on a g1 × g2 grid from the spectrum of x, scaled to the fine-grid definition.
-void modulus_conv(const Spectrum& x, const Filter& f, std::size_t g1, std::size_t g2, fft::Buffer<cf>& work,
-                  float* out) {
-  std::fill(work.data(), work.data() + g1 * g2, cf(0.0f, 0.0f));
+/// Σ |w| over g1 rows of g2 complex values `pitch` apart; with Store, also out[i] = scale |w_i|
+/// (g1 × g2 contiguous). Eight float partial sums per row keep the loop vectorised (sqrtf
+/// vectorises with -fno-math-errno, see CMakeLists.txt); rows are summed in double.
+template <bool Store>
+double modulus_sum(const cf* work, std::size_t g1, std::size_t g2, std::size_t pitch, float scale, float* out) {
+  constexpr std::size_t lanes = 8;
+  double total = 0.0;
+  for (std::size_t r = 0; r < g1; ++r) {
+    const float* w = reinterpret_cast<const float*>(work + r * pitch);
+    float* o = Store ? out + r * g2 : nullptr;
+    float acc[lanes] = {};
+    std::size_t k = 0;
+    for (; k + lanes <= g2; k += lanes)
+      for (std::size_t t = 0; t < lanes; ++t) {
+        const float re = w[2 * (k + t)], im = w[2 * (k + t) + 1];
+        const float v = std::sqrt(re * re + im * im);
+        acc[t] += v;
+        if constexpr (Store) o[k + t] = v * scale;
+      }
+    float rest = 0.0f;
+    for (; k < g2; ++k) {
+      const float v = std::sqrt(w[2 * k] * w[2 * k] + w[2 * k + 1] * w[2 * k + 1]);
+      rest += v;
+      if constexpr (Store) o[k] = v * scale;
+    }
+    float row = rest;
+    for (std::size_t t = 0; t < lanes; ++t) row += acc[t];
+    total += static_cast<double>(row);
+  }
+  return total * static_cast<double>(scale);
+}
+
+/// Inverse transform of the g1 × g2 grid in `work` (rows `pitch` apart) whose non-zero
+/// values lie in rows [r0, r0+w1) and columns [d0, d0+w2) (both mod the grid). A 2D
+/// transform is two passes of 1D transforms; the first pass skips the empty rows (or
+/// columns), whichever saves more.
+void inverse_box(cf* work, std::size_t g1, std::size_t g2, std::size_t pitch, std::size_t r0, std::size_t w1,
+                 std::size_t d0, std::size_t w2) {
+  using fft::Direction;
+  if (w1 >= g1 && w2 >= g2) {
+    fft::c2c_2d_pitched(g1, g2, work, pitch, work, pitch, Direction::inverse);
+    return;
+  }
+  const double l1 = std::log2(static_cast<double>(g1) + 1.0), l2 = std::log2(static_cast<double>(g2) + 1.0);
+  const double rows_first = static_cast<double>(w1) * static_cast<double>(g2) * l2 + static_cast<double>(g2 * g1) * l1;
+  const double cols_first = static_cast<double>(w2) * static_cast<double>(g1) * l1 + static_cast<double>(g1 * g2) * l2;
+  if (rows_first <= cols_first) {
+    // rows of the box along axis 1 (at most two runs of consecutive rows), then every column
+    const std::size_t first = std::min(w1, g1 - r0);
+    fft::c2c_1d_batch(g2, first, work + r0 * pitch, 1, pitch, work + r0 * pitch, 1, pitch, Direction::inverse);
+    if (first < w1) fft::c2c_1d_batch(g2, w1 - first, work, 1, pitch, work, 1, pitch, Direction::inverse);
+    fft::c2c_1d_batch(g1, g2, work, pitch, 1, work, pitch, 1, Direction::inverse);
+  } else {
+    const std::size_t first = std::min(w2, g2 - d0);
+    fft::c2c_1d_batch(g1, first, work + d0, pitch, 1, work + d0, pitch, 1, Direction::inverse);
+    if (first < w2) fft::c2c_1d_batch(g1, w2 - first, work, pitch, 1, work, pitch, 1, Direction::inverse);
+    fft::c2c_1d_batch(g2, g1, work, 1, pitch, work, 1, pitch, Direction::inverse);
+  }
+}
+
+/// mean |x⋆ψ| on a g1 × g2 grid from the spectrum of x, scaled to the fine-grid definition;
+/// with `store`, the samples |x⋆ψ| too (g1 × g2 contiguous).
+double modulus_conv(const Spectrum& x, const Filter& f, std::size_t g1, std::size_t g2, Scratch& scratch,
+                    float* store) {
+  const std::size_t pitch = g2 + row_pad;
+  Scratch::fit(scratch.work, g1 * pitch);
+  cf* work = scratch.work.data();
   const std::size_t s0 = static_cast<std::size_t>(wrap(f.b2, x.p2));
   const std::size_t d0 = static_cast<std::size_t>(wrap(f.b2 - f.c2, g2));
-  for (std::size_t i = 0; i < f.w1; ++i) {
-    const long m1 = f.b1 + static_cast<long>(i);
-    const cf* src = x.data.data() + static_cast<std::size_t>(wrap(m1, x.p1)) * x.p2;
-    cf* dst = work.data() + static_cast<std::size_t>(wrap(m1 - f.c1, g1)) * g2;
+  const std::size_t r0 = static_cast<std::size_t>(wrap(f.b1 - f.c1, g1));
+  const cf zero(0.0f, 0.0f);
+  // Every element of the grid is written once: zeros, or the box row times ψ̂.
+  for (std::size_t r = 0; r < g1; ++r) {
+    cf* dst = work + r * pitch;
+    const std::size_t i = (r + g1 - r0) % g1;  // box row landing on grid row r
+    if (i >= f.w1) {
+      std::fill(dst, dst + g2, zero);
+      continue;
+    }
+    const cf* src = x.data.data() + static_cast<std::size_t>(wrap(f.b1 + static_cast<long>(i), x.p1)) * x.p2;
     const float* v = f.value.data() + i * f.w2;
+    // Columns after the box, up to its start again (at most two runs as the grid wraps).
+    if (f.w2 < g2) {
+      const std::size_t z0 = (d0 + f.w2) % g2, zl = g2 - f.w2, first = std::min(zl, g2 - z0);
+      std::fill(dst + z0, dst + z0 + first, zero);
+      std::fill(dst, dst + (zl - first), zero);
+    }
     // The box row is at most two runs in the source and in the destination (each wraps once).
     std::size_t k = 0, s = s0, d = d0;
     while (k < f.w2) {
@@ -212,10 +305,11 @@ void modulus_conv(const Spectrum& x, const Filter& f, std::size_t g1, std::size_
       d = (d + run) % g2;
     }
   }
-  fft::c2c_2d(g1, g2, work.data(), work.data(), fft::Direction::inverse);
+  inverse_box(work, g1, g2, pitch, r0, f.w1, d0, f.w2);
   const float scale = 1.0f / static_cast<float>(x.p1 * x.p2);  // unnormalised inverse of an unnormalised forward
-  const float* w = reinterpret_cast<const float*>(work.data());
-  for (std::size_t i = 0; i < g1 * g2; ++i) out[i] = std::sqrt(w[2 * i] * w[2 * i] + w[2 * i + 1] * w[2 * i + 1]) * scale;
+  const double sum = store ? modulus_sum<true>(work, g1, g2, pitch, scale, store)
+                           : modulus_sum<false>(work, g1, g2, pitch, scale, nullptr);
+  return sum / static_cast<double>(g1 * g2);
 }
 
 double mean(const float* v, std::size_t n) {
@@ -270,10 +364,11 @@ class ScatteringKernel final : public Kernel {
     check(g);
     const std::size_t n1 = g.shape[0], n2 = g.shape[1], J = p_.J, L = p_.L;
     auto bank = cache_.get(ShapeKey{n1, n2}, [&] { return build_bank(p_, n1, n2); });
+    thread_local Scratch scratch;
+    thread_local Spectrum x, ux;
     fft::Buffer<float> copy;
-    const auto x = forward(aligned(data, n1 * n2, copy), n1, n2);
-    fft::Buffer<cf> work(n1 * n2);
-    fft::Buffer<float> u1(n1 * n2), u2(n1 * n2);
+    forward(aligned(data, n1 * n2, copy), n1, n2, scratch, x);
+    Scratch::fit(scratch.u1, n1 * n2);
 
     const double s0 = mean(data, n1 * n2);
     std::vector<double> s1(J * L);
@@ -281,15 +376,14 @@ class ScatteringKernel final : public Kernel {
     for (std::size_t ja = 0; ja < J; ++ja)
       for (std::size_t la = 0; la < L; ++la) {
         const Filter& fa = bank->filters[ja * L + la];
-        modulus_conv(x, fa, fa.u1, fa.u2, work, u1.data());
-        s1[ja * L + la] = mean(u1.data(), fa.u1 * fa.u2);
-        if (ja + 1 == J) continue;
-        const auto ux = forward(u1.data(), fa.u1, fa.u2);
+        const bool last = ja + 1 == J;
+        s1[ja * L + la] = modulus_conv(x, fa, fa.u1, fa.u2, scratch, last ? nullptr : scratch.u1.data());
+        if (last) continue;
+        forward(scratch.u1.data(), fa.u1, fa.u2, scratch, ux);
         for (std::size_t jb = ja + 1; jb < J; ++jb)
           for (std::size_t lb = 0; lb < L; ++lb) {
             const Filter& fb = bank->filters[jb * L + lb];
-            modulus_conv(ux, fb, fb.m1, fb.m2, work, u2.data());
-            s2[((ja * L + la) * J + jb) * L + lb] = mean(u2.data(), fb.m1 * fb.m2);
+            s2[((ja * L + la) * J + jb) * L + lb] = modulus_conv(ux, fb, fb.m1, fb.m2, scratch, nullptr);
           }
       }
     if (p_.normalise)

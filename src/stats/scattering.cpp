@@ -175,7 +175,7 @@ constexpr std::size_t row_pad = 8;
 
 /// Scratch reused across calls on one thread (fresh pages fault on every first touch).
 struct Scratch {
-  fft::Buffer<cf> half, work;
+  fft::Buffer<cf> half, work, out;
   fft::Buffer<float> u1;
   static void fit(fft::Buffer<cf>& b, std::size_t n) {
     if (b.size() < n) b = fft::Buffer<cf>(n);
@@ -240,31 +240,34 @@ double modulus_sum(const cf* work, std::size_t g1, std::size_t g2, std::size_t p
   return total * static_cast<double>(scale);
 }
 
-/// Inverse transform of the g1 × g2 grid in `work` (rows `pitch` apart) whose non-zero
-/// values lie in rows [r0, r0+w1) and columns [d0, d0+w2) (both mod the grid). A 2D
-/// transform is two passes of 1D transforms; the first pass skips the empty rows (or
-/// columns), whichever saves more.
-void inverse_box(cf* work, std::size_t g1, std::size_t g2, std::size_t pitch, std::size_t r0, std::size_t w1,
+/// Inverse transform of the g1 × g2 grid in `work` (rows `pitch` apart, destroyed) into `out`
+/// (same layout), when the non-zero values lie in rows [r0, r0+w1) and columns [d0, d0+w2)
+/// (both mod the grid). A 2D transform is two passes of 1D transforms; the first pass skips
+/// the empty rows or columns, whichever saves more. Column passes (stride `pitch`) cost about
+/// twice as much per element as row passes, and out-of-place second passes run faster than in
+/// place (both measured on 256 × 256 and 256 × 128 grids).
+void inverse_box(cf* work, cf* out, std::size_t g1, std::size_t g2, std::size_t pitch, std::size_t r0, std::size_t w1,
                  std::size_t d0, std::size_t w2) {
   using fft::Direction;
   if (w1 >= g1 && w2 >= g2) {
-    fft::c2c_2d_pitched(g1, g2, work, pitch, work, pitch, Direction::inverse);
+    fft::c2c_2d_pitched(g1, g2, work, pitch, out, pitch, Direction::inverse);
     return;
   }
-  const double l1 = std::log2(static_cast<double>(g1) + 1.0), l2 = std::log2(static_cast<double>(g2) + 1.0);
-  const double rows_first = static_cast<double>(w1) * static_cast<double>(g2) * l2 + static_cast<double>(g2 * g1) * l1;
-  const double cols_first = static_cast<double>(w2) * static_cast<double>(g1) * l1 + static_cast<double>(g1 * g2) * l2;
-  if (rows_first <= cols_first) {
+  const double row = static_cast<double>(g2) * std::log2(static_cast<double>(g2) + 1.0);
+  const double col = 2.0 * static_cast<double>(g1) * std::log2(static_cast<double>(g1) + 1.0);
+  const double rows_first = static_cast<double>(w1) * row + static_cast<double>(g2) * col;
+  const double cols_first = static_cast<double>(w2) * col + static_cast<double>(g1) * row;
+  if (rows_first < cols_first) {
     // rows of the box along axis 1 (at most two runs of consecutive rows), then every column
     const std::size_t first = std::min(w1, g1 - r0);
     fft::c2c_1d_batch(g2, first, work + r0 * pitch, 1, pitch, work + r0 * pitch, 1, pitch, Direction::inverse);
     if (first < w1) fft::c2c_1d_batch(g2, w1 - first, work, 1, pitch, work, 1, pitch, Direction::inverse);
-    fft::c2c_1d_batch(g1, g2, work, pitch, 1, work, pitch, 1, Direction::inverse);
+    fft::c2c_1d_batch(g1, g2, work, pitch, 1, out, pitch, 1, Direction::inverse);
   } else {
     const std::size_t first = std::min(w2, g2 - d0);
     fft::c2c_1d_batch(g1, first, work + d0, pitch, 1, work + d0, pitch, 1, Direction::inverse);
     if (first < w2) fft::c2c_1d_batch(g1, w2 - first, work, pitch, 1, work, pitch, 1, Direction::inverse);
-    fft::c2c_1d_batch(g2, g1, work, 1, pitch, work, 1, pitch, Direction::inverse);
+    fft::c2c_1d_batch(g2, g1, work, 1, pitch, out, 1, pitch, Direction::inverse);
   }
 }
 
@@ -274,6 +277,7 @@ double modulus_conv(const Spectrum& x, const Filter& f, std::size_t g1, std::siz
                     float* store) {
   const std::size_t pitch = g2 + row_pad;
   Scratch::fit(scratch.work, g1 * pitch);
+  Scratch::fit(scratch.out, g1 * pitch);
   cf* work = scratch.work.data();
   const std::size_t s0 = static_cast<std::size_t>(wrap(f.b2, x.p2));
   const std::size_t d0 = static_cast<std::size_t>(wrap(f.b2 - f.c2, g2));
@@ -305,10 +309,11 @@ double modulus_conv(const Spectrum& x, const Filter& f, std::size_t g1, std::siz
       d = (d + run) % g2;
     }
   }
-  inverse_box(work, g1, g2, pitch, r0, f.w1, d0, f.w2);
+  inverse_box(work, scratch.out.data(), g1, g2, pitch, r0, f.w1, d0, f.w2);
   const float scale = 1.0f / static_cast<float>(x.p1 * x.p2);  // unnormalised inverse of an unnormalised forward
-  const double sum = store ? modulus_sum<true>(work, g1, g2, pitch, scale, store)
-                           : modulus_sum<false>(work, g1, g2, pitch, scale, nullptr);
+  const cf* result = scratch.out.data();
+  const double sum = store ? modulus_sum<true>(result, g1, g2, pitch, scale, store)
+                           : modulus_sum<false>(result, g1, g2, pitch, scale, nullptr);
   return sum / static_cast<double>(g1 * g2);
 }
 

@@ -173,10 +173,44 @@ Bank build_bank(const ScatteringParams& p, std::size_t n1, std::size_t n2) {
 /// 256 × 256 then ran ~10× slower than with padded rows (bench_stats prints both).
 constexpr std::size_t row_pad = 8;
 
+/// Where the work grid holds non-zero values after a convolution: rows [start, start+len)
+/// (mod g1) of g2 values, or columns [start, start+len) (mod g2) of every row.
+struct Dirty {
+  std::size_t g1 = 0, g2 = 0, pitch = 0;
+  bool rows = true;
+  std::size_t start = 0, len = 0;
+};
+
 /// Scratch reused across calls on one thread (fresh pages fault on every first touch).
+/// `work` is all zeros outside `dirty`, so a convolution clears only what the last one wrote.
 struct Scratch {
   fft::Buffer<cf> half, work, out;
   fft::Buffer<float> u1;
+  Dirty dirty;
+  void fit_work(std::size_t n) {
+    if (work.size() >= n) return;
+    work = fft::Buffer<cf>(n);
+    std::fill(work.data(), work.data() + n, cf(0.0f, 0.0f));
+    dirty = Dirty{};
+  }
+  void clean() {
+    const Dirty& d = dirty;
+    const cf zero(0.0f, 0.0f);
+    if (d.rows) {
+      for (std::size_t t = 0; t < d.len; ++t) {
+        cf* row = work.data() + ((d.start + t) % d.g1) * d.pitch;
+        std::fill(row, row + d.g2, zero);
+      }
+    } else if (d.len > 0) {
+      const std::size_t first = std::min(d.len, d.g2 - d.start);
+      for (std::size_t r = 0; r < d.g1; ++r) {
+        cf* row = work.data() + r * d.pitch;
+        std::fill(row + d.start, row + d.start + first, zero);
+        std::fill(row, row + (d.len - first), zero);
+      }
+    }
+    dirty = Dirty{};
+  }
   static void fit(fft::Buffer<cf>& b, std::size_t n) {
     if (b.size() < n) b = fft::Buffer<cf>(n);
   }
@@ -212,7 +246,8 @@ void forward(const float* real, std::size_t p1, std::size_t p2, Scratch& scratch
 /// (g1 × g2 contiguous). Eight float partial sums per row keep the loop vectorised (sqrtf
 /// vectorises with -fno-math-errno, see CMakeLists.txt); rows are summed in double.
 template <bool Store>
-double modulus_sum(const cf* work, std::size_t g1, std::size_t g2, std::size_t pitch, float scale, float* out) {
+[[gnu::always_inline]] inline double modulus_sum(const cf* work, std::size_t g1, std::size_t g2, std::size_t pitch,
+                                                 float scale, float* out) {
   constexpr std::size_t lanes = 8;
   double total = 0.0;
   for (std::size_t r = 0; r < g1; ++r) {
@@ -240,18 +275,45 @@ double modulus_sum(const cf* work, std::size_t g1, std::size_t g2, std::size_t p
   return total * static_cast<double>(scale);
 }
 
+// The modulus loops are compiled twice, for AVX2 and the baseline, and picked at load time
+// (the build targets baseline x86-64; FFTW picks its own SIMD at run time likewise).
+#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__)
+#define SPINFLIP_SIMD_CLONES [[gnu::target_clones("avx2", "default")]]
+#else
+#define SPINFLIP_SIMD_CLONES
+#endif
+SPINFLIP_SIMD_CLONES double modulus_mean_only(const cf* work, std::size_t g1, std::size_t g2, std::size_t pitch,
+                                              float scale) {
+  return modulus_sum<false>(work, g1, g2, pitch, scale, nullptr);
+}
+SPINFLIP_SIMD_CLONES double modulus_mean_store(const cf* work, std::size_t g1, std::size_t g2, std::size_t pitch,
+                                               float scale, float* out) {
+  return modulus_sum<true>(work, g1, g2, pitch, scale, out);
+}
+
+/// dst[t] = src[t] v[t] for t < n (complex times real, as interleaved floats).
+SPINFLIP_SIMD_CLONES void multiply_run(cf* dst, const cf* src, const float* v, std::size_t n) {
+  float* d = reinterpret_cast<float*>(dst);
+  const float* s = reinterpret_cast<const float*>(src);
+  for (std::size_t t = 0; t < n; ++t) {
+    d[2 * t] = s[2 * t] * v[t];
+    d[2 * t + 1] = s[2 * t + 1] * v[t];
+  }
+}
+
 /// Inverse transform of the g1 × g2 grid in `work` (rows `pitch` apart, destroyed) into `out`
 /// (same layout), when the non-zero values lie in rows [r0, r0+w1) and columns [d0, d0+w2)
 /// (both mod the grid). A 2D transform is two passes of 1D transforms; the first pass skips
 /// the empty rows or columns, whichever saves more. Column passes (stride `pitch`) cost about
 /// twice as much per element as row passes, and out-of-place second passes run faster than in
 /// place (both measured on 256 × 256 and 256 × 128 grids).
-void inverse_box(cf* work, cf* out, std::size_t g1, std::size_t g2, std::size_t pitch, std::size_t r0, std::size_t w1,
-                 std::size_t d0, std::size_t w2) {
+/// Returns what it left non-zero in `work` (c2c out of place preserves its input).
+Dirty inverse_box(cf* work, cf* out, std::size_t g1, std::size_t g2, std::size_t pitch, std::size_t r0, std::size_t w1,
+                  std::size_t d0, std::size_t w2) {
   using fft::Direction;
   if (w1 >= g1 && w2 >= g2) {
     fft::c2c_2d_pitched(g1, g2, work, pitch, out, pitch, Direction::inverse);
-    return;
+    return Dirty{g1, g2, pitch, true, 0, g1};
   }
   const double row = static_cast<double>(g2) * std::log2(static_cast<double>(g2) + 1.0);
   const double col = 2.0 * static_cast<double>(g1) * std::log2(static_cast<double>(g1) + 1.0);
@@ -263,11 +325,14 @@ void inverse_box(cf* work, cf* out, std::size_t g1, std::size_t g2, std::size_t 
     fft::c2c_1d_batch(g2, first, work + r0 * pitch, 1, pitch, work + r0 * pitch, 1, pitch, Direction::inverse);
     if (first < w1) fft::c2c_1d_batch(g2, w1 - first, work, 1, pitch, work, 1, pitch, Direction::inverse);
     fft::c2c_1d_batch(g1, g2, work, pitch, 1, out, pitch, 1, Direction::inverse);
-  } else {
+    return Dirty{g1, g2, pitch, true, r0, w1};
+  }
+  {
     const std::size_t first = std::min(w2, g2 - d0);
     fft::c2c_1d_batch(g1, first, work + d0, pitch, 1, work + d0, pitch, 1, Direction::inverse);
     if (first < w2) fft::c2c_1d_batch(g1, w2 - first, work, pitch, 1, work, pitch, 1, Direction::inverse);
     fft::c2c_1d_batch(g2, g1, work, 1, pitch, out, 1, pitch, Direction::inverse);
+    return Dirty{g1, g2, pitch, false, d0, w2};
   }
 }
 
@@ -276,44 +341,33 @@ void inverse_box(cf* work, cf* out, std::size_t g1, std::size_t g2, std::size_t 
 double modulus_conv(const Spectrum& x, const Filter& f, std::size_t g1, std::size_t g2, Scratch& scratch,
                     float* store) {
   const std::size_t pitch = g2 + row_pad;
-  Scratch::fit(scratch.work, g1 * pitch);
+  scratch.fit_work(g1 * pitch);
   Scratch::fit(scratch.out, g1 * pitch);
+  scratch.clean();
   cf* work = scratch.work.data();
   const std::size_t s0 = static_cast<std::size_t>(wrap(f.b2, x.p2));
   const std::size_t d0 = static_cast<std::size_t>(wrap(f.b2 - f.c2, g2));
   const std::size_t r0 = static_cast<std::size_t>(wrap(f.b1 - f.c1, g1));
-  const cf zero(0.0f, 0.0f);
-  // Every element of the grid is written once: zeros, or the box row times ψ̂.
-  for (std::size_t r = 0; r < g1; ++r) {
-    cf* dst = work + r * pitch;
-    const std::size_t i = (r + g1 - r0) % g1;  // box row landing on grid row r
-    if (i >= f.w1) {
-      std::fill(dst, dst + g2, zero);
-      continue;
-    }
+  // The grid is all zeros now; write the box: each row of it times ψ̂, at most two runs in
+  // the source and in the destination (each wraps once).
+  for (std::size_t i = 0; i < f.w1; ++i) {
+    cf* dst = work + ((r0 + i) % g1) * pitch;
     const cf* src = x.data.data() + static_cast<std::size_t>(wrap(f.b1 + static_cast<long>(i), x.p1)) * x.p2;
     const float* v = f.value.data() + i * f.w2;
-    // Columns after the box, up to its start again (at most two runs as the grid wraps).
-    if (f.w2 < g2) {
-      const std::size_t z0 = (d0 + f.w2) % g2, zl = g2 - f.w2, first = std::min(zl, g2 - z0);
-      std::fill(dst + z0, dst + z0 + first, zero);
-      std::fill(dst, dst + (zl - first), zero);
-    }
-    // The box row is at most two runs in the source and in the destination (each wraps once).
     std::size_t k = 0, s = s0, d = d0;
     while (k < f.w2) {
       const std::size_t run = std::min({f.w2 - k, x.p2 - s, g2 - d});
-      for (std::size_t t = 0; t < run; ++t) dst[d + t] = src[s + t] * v[k + t];
+      multiply_run(dst + d, src + s, v + k, run);
       k += run;
       s = (s + run) % x.p2;
       d = (d + run) % g2;
     }
   }
-  inverse_box(work, scratch.out.data(), g1, g2, pitch, r0, f.w1, d0, f.w2);
+  scratch.dirty = inverse_box(work, scratch.out.data(), g1, g2, pitch, r0, f.w1, d0, f.w2);
   const float scale = 1.0f / static_cast<float>(x.p1 * x.p2);  // unnormalised inverse of an unnormalised forward
   const cf* result = scratch.out.data();
-  const double sum = store ? modulus_sum<true>(result, g1, g2, pitch, scale, store)
-                           : modulus_sum<false>(result, g1, g2, pitch, scale, nullptr);
+  const double sum = store ? modulus_mean_store(result, g1, g2, pitch, scale, store)
+                           : modulus_mean_only(result, g1, g2, pitch, scale);
   return sum / static_cast<double>(g1 * g2);
 }
 

@@ -184,7 +184,7 @@ struct Dirty {
 /// Scratch reused across calls on one thread (fresh pages fault on every first touch).
 /// `work` is all zeros outside `dirty`, so a convolution clears only what the last one wrote.
 struct Scratch {
-  fft::Buffer<cf> half, work, out;
+  fft::Buffer<cf> half, work, out, box;
   fft::Buffer<float> u1;
   Dirty dirty;
   void fit_work(std::size_t n) {
@@ -301,73 +301,103 @@ SPINFLIP_SIMD_CLONES void multiply_run(cf* dst, const cf* src, const float* v, s
   }
 }
 
-/// Inverse transform of the g1 × g2 grid in `work` (rows `pitch` apart, destroyed) into `out`
-/// (same layout), when the non-zero values lie in rows [r0, r0+w1) and columns [d0, d0+w2)
-/// (both mod the grid). A 2D transform is two passes of 1D transforms; the first pass skips
-/// the empty rows or columns, whichever saves more. Column passes (stride `pitch`) cost about
-/// twice as much per element as row passes, and out-of-place second passes run faster than in
-/// place (both measured on 256 × 256 and 256 × 128 grids).
-/// Returns what it left non-zero in `work` (c2c out of place preserves its input).
-Dirty inverse_box(cf* work, cf* out, std::size_t g1, std::size_t g2, std::size_t pitch, std::size_t r0, std::size_t w1,
-                  std::size_t d0, std::size_t w2) {
-  using fft::Direction;
-  if (w1 >= g1 && w2 >= g2) {
-    fft::c2c_2d_pitched(g1, g2, work, pitch, out, pitch, Direction::inverse);
-    return Dirty{g1, g2, pitch, true, 0, g1};
-  }
-  const double row = static_cast<double>(g2) * std::log2(static_cast<double>(g2) + 1.0);
-  const double col = 2.0 * static_cast<double>(g1) * std::log2(static_cast<double>(g1) + 1.0);
-  const double rows_first = static_cast<double>(w1) * row + static_cast<double>(g2) * col;
-  const double cols_first = static_cast<double>(w2) * col + static_cast<double>(g1) * row;
-  if (rows_first < cols_first) {
-    // rows of the box along axis 1 (at most two runs of consecutive rows), then every column
-    const std::size_t first = std::min(w1, g1 - r0);
-    fft::c2c_1d_batch(g2, first, work + r0 * pitch, 1, pitch, work + r0 * pitch, 1, pitch, Direction::inverse);
-    if (first < w1) fft::c2c_1d_batch(g2, w1 - first, work, 1, pitch, work, 1, pitch, Direction::inverse);
-    fft::c2c_1d_batch(g1, g2, work, pitch, 1, out, pitch, 1, Direction::inverse);
-    return Dirty{g1, g2, pitch, true, r0, w1};
-  }
-  {
-    const std::size_t first = std::min(w2, g2 - d0);
-    fft::c2c_1d_batch(g1, first, work + d0, pitch, 1, work + d0, pitch, 1, Direction::inverse);
-    if (first < w2) fft::c2c_1d_batch(g1, w2 - first, work, pitch, 1, work, pitch, 1, Direction::inverse);
-    fft::c2c_1d_batch(g2, g1, work, 1, pitch, out, 1, pitch, Direction::inverse);
-    return Dirty{g1, g2, pitch, false, d0, w2};
-  }
+/// Row length for a compact buffer of n complex values: a multiple of 8 (64-byte rows),
+/// moved off large powers of two like the work grid's rows.
+std::size_t compact_pitch(std::size_t n) {
+  std::size_t p = (n + 7) / 8 * 8;
+  if (p >= 64 && (p & (p - 1)) == 0) p += row_pad;
+  return p;
 }
 
 /// mean |x⋆ψ| on a g1 × g2 grid from the spectrum of x, scaled to the fine-grid definition;
 /// with `store`, the samples |x⋆ψ| too (g1 × g2 contiguous).
+///
+/// The box of x̂ψ̂ lands in grid rows [r0, r0+w1) and columns [d0, d0+w2) (mod the grid). The
+/// inverse is two passes of 1D transforms, and when the box leaves rows or columns empty the
+/// first pass skips them: either the box's rows (zero-padded to g2) are gathered into a
+/// compact buffer and transformed along axis 1 into the work grid, then every column; or the
+/// box's columns (zero-padded to g1), then every row. Column passes (stride `pitch`) cost about
+/// twice as much per element as row passes, and each pass runs faster out of place than in
+/// place (both measured on 256 × 256 and 256 × 128 grids), hence the cost model and buffers.
 double modulus_conv(const Spectrum& x, const Filter& f, std::size_t g1, std::size_t g2, Scratch& scratch,
                     float* store) {
+  using fft::Direction;
   const std::size_t pitch = g2 + row_pad;
   scratch.fit_work(g1 * pitch);
   Scratch::fit(scratch.out, g1 * pitch);
-  scratch.clean();
+  scratch.clean();  // the work grid is all zeros from here
   cf* work = scratch.work.data();
+  cf* out = scratch.out.data();
+  const std::size_t w1 = f.w1, w2 = f.w2;
   const std::size_t s0 = static_cast<std::size_t>(wrap(f.b2, x.p2));
   const std::size_t d0 = static_cast<std::size_t>(wrap(f.b2 - f.c2, g2));
   const std::size_t r0 = static_cast<std::size_t>(wrap(f.b1 - f.c1, g1));
-  // The grid is all zeros now; write the box: each row of it times ψ̂, at most two runs in
-  // the source and in the destination (each wraps once).
-  for (std::size_t i = 0; i < f.w1; ++i) {
-    cf* dst = work + ((r0 + i) % g1) * pitch;
-    const cf* src = x.data.data() + static_cast<std::size_t>(wrap(f.b1 + static_cast<long>(i), x.p1)) * x.p2;
-    const float* v = f.value.data() + i * f.w2;
-    std::size_t k = 0, s = s0, d = d0;
-    while (k < f.w2) {
-      const std::size_t run = std::min({f.w2 - k, x.p2 - s, g2 - d});
+  auto source_row = [&](std::size_t i) {
+    return x.data.data() + static_cast<std::size_t>(wrap(f.b1 + static_cast<long>(i), x.p1)) * x.p2;
+  };
+  // Box row i times ψ̂ into dst, whose column k of the box is at dst[(d + k) mod len]: at most
+  // two runs in the source and in the destination (each wraps once).
+  auto put_row = [&](std::size_t i, cf* dst, std::size_t d, std::size_t len) {
+    const cf* src = source_row(i);
+    const float* v = f.value.data() + i * w2;
+    std::size_t k = 0, s = s0;
+    while (k < w2) {
+      const std::size_t run = std::min({w2 - k, x.p2 - s, len - d});
       multiply_run(dst + d, src + s, v + k, run);
       k += run;
       s = (s + run) % x.p2;
-      d = (d + run) % g2;
+      d = (d + run) % len;
+    }
+  };
+  const cf zero(0.0f, 0.0f);
+  if (w1 >= g1 && w2 >= g2) {  // nothing empty: gather in place, one 2D transform
+    for (std::size_t i = 0; i < w1; ++i) put_row(i, work + ((r0 + i) % g1) * pitch, d0, g2);
+    fft::c2c_2d_pitched(g1, g2, work, pitch, out, pitch, Direction::inverse);
+    scratch.dirty = Dirty{g1, g2, pitch, true, 0, g1};
+  } else {
+    const double row = static_cast<double>(g2) * std::log2(static_cast<double>(g2) + 1.0);
+    const double col = 2.0 * static_cast<double>(g1) * std::log2(static_cast<double>(g1) + 1.0);
+    const bool rows_first = static_cast<double>(w1) * row + static_cast<double>(g2) * col <
+                            static_cast<double>(w2) * col + static_cast<double>(g1) * row;
+    if (rows_first) {
+      const std::size_t bp = compact_pitch(g2);
+      Scratch::fit(scratch.box, w1 * bp);
+      cf* box = scratch.box.data();
+      for (std::size_t i = 0; i < w1; ++i) {
+        cf* dst = box + i * bp;
+        if (w2 < g2) {  // columns after the box, up to its start again (at most two runs)
+          const std::size_t z0 = (d0 + w2) % g2, zl = g2 - w2, first = std::min(zl, g2 - z0);
+          std::fill(dst + z0, dst + z0 + first, zero);
+          std::fill(dst, dst + (zl - first), zero);
+        }
+        put_row(i, dst, d0, g2);
+      }
+      const std::size_t first = std::min(w1, g1 - r0);  // grid rows [r0, g1), then [0, ...)
+      fft::c2c_1d_batch(g2, first, box, 1, bp, work + r0 * pitch, 1, pitch, Direction::inverse);
+      if (first < w1) fft::c2c_1d_batch(g2, w1 - first, box + first * bp, 1, bp, work, 1, pitch, Direction::inverse);
+      fft::c2c_1d_batch(g1, g2, work, pitch, 1, out, pitch, 1, Direction::inverse);
+      scratch.dirty = Dirty{g1, g2, pitch, true, r0, w1};
+    } else {
+      const std::size_t bp = compact_pitch(w2);
+      Scratch::fit(scratch.box, g1 * bp);
+      cf* box = scratch.box.data();
+      for (std::size_t r = 0; r < g1; ++r) {
+        const std::size_t i = (r + g1 - r0) % g1;  // box row landing on grid row r
+        if (i >= w1)
+          std::fill(box + r * bp, box + r * bp + w2, zero);
+        else
+          put_row(i, box + r * bp, 0, w2);
+      }
+      const std::size_t first = std::min(w2, g2 - d0);  // grid columns [d0, g2), then [0, ...)
+      fft::c2c_1d_batch(g1, first, box, bp, 1, work + d0, pitch, 1, Direction::inverse);
+      if (first < w2) fft::c2c_1d_batch(g1, w2 - first, box + first, bp, 1, work, pitch, 1, Direction::inverse);
+      fft::c2c_1d_batch(g2, g1, work, 1, pitch, out, 1, pitch, Direction::inverse);
+      scratch.dirty = Dirty{g1, g2, pitch, false, d0, w2};
     }
   }
-  scratch.dirty = inverse_box(work, scratch.out.data(), g1, g2, pitch, r0, f.w1, d0, f.w2);
   const float scale = 1.0f / static_cast<float>(x.p1 * x.p2);  // unnormalised inverse of an unnormalised forward
-  const cf* result = scratch.out.data();
-  const double sum = store ? modulus_mean_store(result, g1, g2, pitch, scale, store)
-                           : modulus_mean_only(result, g1, g2, pitch, scale);
+  const double sum = store ? modulus_mean_store(out, g1, g2, pitch, scale, store)
+                           : modulus_mean_only(out, g1, g2, pitch, scale);
   return sum / static_cast<double>(g1 * g2);
 }
 

@@ -1,7 +1,9 @@
 // Statistic kernels against the transforms they are built on, measured in the
 // same run (ratios printed at the end; never a pass/fail on time):
 //  - scattering on a 256 × 256 slice, J = 6, L = 8, S0+S1+S2, cropped and at
-//    full resolution, over one 256 × 256 complex float FFT (issue target ≤ 160);
+//    full resolution, over one 256 × 256 complex float FFT planned as the project
+//    plans its transforms (fft::c2c_2d, FFTW_ESTIMATE, contiguous; issue target ≤ 160),
+//    and, for information, over the same FFT on padded rows;
 //  - spherical power of a 128 × 128 × 1024 chunk over its forward r2c FFT (≤ 1.5).
 //   bench_stats [--benchmark_filter=...] [--benchmark_min_time=...]
 #include <benchmark/benchmark.h>
@@ -47,6 +49,21 @@ void fft_c2c_256(benchmark::State& state) {
   }
 }
 BENCHMARK(fft_c2c_256)->Unit(benchmark::kMillisecond);
+
+// The same transform on rows padded to 264 elements (what the scattering kernel's inverses
+// use): a contiguous power-of-two row under FFTW_ESTIMATE is much slower (cache sets). Not the
+// reference of the target, printed as a second ratio to show how much of it is the layout.
+void fft_c2c_256_padded(benchmark::State& state) {
+  constexpr std::size_t pitch = 256 + 8;
+  fft::Buffer<fft::cfloat> a(256 * pitch), b(256 * pitch);
+  for (std::size_t i = 0; i < a.size(); ++i) a[i] = fft::cfloat(static_cast<float>(i % 7), 0.0f);
+  fft::c2c_2d_pitched(256, 256, a.data(), pitch, b.data(), pitch, fft::Direction::inverse);
+  for (auto _ : state) {
+    fft::c2c_2d_pitched(256, 256, a.data(), pitch, b.data(), pitch, fft::Direction::inverse);
+    benchmark::DoNotOptimize(b.data());
+  }
+}
+BENCHMARK(fft_c2c_256_padded)->Unit(benchmark::kMillisecond);
 
 void scattering(benchmark::State& state, bool crop) {
   auto k = kernel(std::string("[stats.scattering]\nscales = 6\norientations = 8\ncrop = ") + (crop ? "true" : "false"));
@@ -110,6 +127,9 @@ int main(int argc, char** argv) {
   std::printf("\nratios (same run, one thread):\n");
   ratio("scattering 256² J=6 L=8 (cropped) / c2c FFT 256²", "scattering/cropped", "fft_c2c_256", "target <= 160");
   ratio("scattering 256² full resolution / c2c FFT 256²", "scattering/full", "fft_c2c_256", "reference");
+  ratio("cropped / padded-row c2c FFT 256² (not the target)", "scattering/cropped", "fft_c2c_256_padded", "layout");
+  ratio("full resolution / padded-row c2c FFT 256²", "scattering/full", "fft_c2c_256_padded", "layout");
+  ratio("contiguous c2c FFT / padded-row c2c FFT 256²", "fft_c2c_256", "fft_c2c_256_padded", "layout");
   ratio("speed-up of cropping: full / cropped", "scattering/full", "scattering/cropped", "higher is better");
   ratio("spherical power 128x128x1024 / its r2c FFT", "power_chunk", "fft_r2c_chunk", "target <= 1.5");
   benchmark::Shutdown();

@@ -25,8 +25,13 @@ std::mutex& planner_mutex() {
 
 enum class Kind { c2c_fwd, c2c_inv, r2c, c2r };
 
-// (precision, kind, shape, in place, alignment of in, alignment of out)
-using PlanKey = std::tuple<int, Kind, std::array<std::size_t, 3>, int, bool, int, int>;
+// Memory layout beyond a contiguous array: 2D row pitches {in, out, 0, 0}, or a 1D
+// batch's {in stride, in distance, out stride, out distance}; all 0 when contiguous.
+using Layout = std::array<std::size_t, 4>;
+constexpr Layout contiguous{0, 0, 0, 0};
+
+// (precision, kind, shape, rank, in place, alignment of in, alignment of out, layout)
+using PlanKey = std::tuple<int, Kind, std::array<std::size_t, 3>, int, bool, int, int, Layout>;
 
 template <class Plan>
 struct PlanCache {
@@ -48,6 +53,12 @@ int to_int(std::size_t n) {
   return static_cast<int>(n);
 }
 
+// A stride or distance for FFTW's int interface (0 allowed: a batch of one).
+int to_int_stride(std::size_t n) {
+  if (n > static_cast<std::size_t>(1) << 30) throw InternalError("fft: stride " + std::to_string(n) + " out of range");
+  return static_cast<int>(n);
+}
+
 int threads_wanted = 1;
 
 struct FloatApi {
@@ -58,6 +69,11 @@ struct FloatApi {
   static int alignment(const void* p) { return fftwf_alignment_of(const_cast<float*>(static_cast<const float*>(p))); }
   static plan dft(int rank, const int* n, complex* in, complex* out, int sign) {
     return fftwf_plan_dft(rank, n, in, out, sign, FFTW_ESTIMATE);
+  }
+  static plan dft_many(int rank, const int* n, int howmany, complex* in, const int* inembed, int istride, int idist,
+                       complex* out, const int* onembed, int ostride, int odist, int sign) {
+    return fftwf_plan_many_dft(rank, n, howmany, in, inembed, istride, idist, out, onembed, ostride, odist, sign,
+                               FFTW_ESTIMATE);
   }
   static plan r2c(int rank, const int* n, real* in, complex* out) {
     return fftwf_plan_dft_r2c(rank, n, in, out, FFTW_ESTIMATE);
@@ -79,6 +95,11 @@ struct DoubleApi {
   static plan dft(int rank, const int* n, complex* in, complex* out, int sign) {
     return fftw_plan_dft(rank, n, in, out, sign, FFTW_ESTIMATE);
   }
+  static plan dft_many(int rank, const int* n, int howmany, complex* in, const int* inembed, int istride, int idist,
+                       complex* out, const int* onembed, int ostride, int odist, int sign) {
+    return fftw_plan_many_dft(rank, n, howmany, in, inembed, istride, idist, out, onembed, ostride, odist, sign,
+                              FFTW_ESTIMATE);
+  }
   static plan r2c(int rank, const int* n, real* in, complex* out) {
     return fftw_plan_dft_r2c(rank, n, in, out, FFTW_ESTIMATE);
   }
@@ -93,10 +114,11 @@ struct DoubleApi {
 /// Find or make the plan for this transform. FFTW_ESTIMATE does not touch the
 /// arrays, so planning on the caller's buffers is safe.
 template <class Api, class In, class Out>
-typename Api::plan plan_for(Kind kind, int rank, const std::array<std::size_t, 3>& shape, In* in, Out* out) {
+typename Api::plan plan_for(Kind kind, int rank, const std::array<std::size_t, 3>& shape, In* in, Out* out,
+                            const Layout& layout = contiguous) {
   const bool in_place = static_cast<const void*>(in) == static_cast<const void*>(out);
   const PlanKey key{sizeof(typename Api::real), kind, shape, rank, in_place, Api::alignment(in),
-                    Api::alignment(out)};
+                    Api::alignment(out), layout};
   std::lock_guard<std::mutex> lock(planner_mutex());
   auto& plans = Api::cache().plans;
   if (auto it = plans.find(key); it != plans.end()) return it->second;
@@ -105,6 +127,19 @@ typename Api::plan plan_for(Kind kind, int rank, const std::array<std::size_t, 3
   typename Api::plan p = nullptr;
   auto* cin = reinterpret_cast<typename Api::complex*>(in);
   auto* cout = reinterpret_cast<typename Api::complex*>(out);
+  if (layout != contiguous) {  // c2c with pitched rows (rank 2) or a strided batch (rank 1)
+    const int sign = kind == Kind::c2c_fwd ? FFTW_FORWARD : FFTW_BACKWARD;
+    if (rank == 2) {
+      const int inembed[2] = {n[0], to_int(layout[0])}, onembed[2] = {n[0], to_int(layout[1])};
+      p = Api::dft_many(2, n, 1, cin, inembed, 1, 0, cout, onembed, 1, 0, sign);
+    } else {
+      p = Api::dft_many(1, n, to_int(shape[1]), cin, nullptr, to_int_stride(layout[0]), to_int_stride(layout[1]), cout,
+                        nullptr, to_int_stride(layout[2]), to_int_stride(layout[3]), sign);
+    }
+    if (p == nullptr) throw InternalError("fft: FFTW could not make a plan");
+    plans.emplace(key, p);
+    return p;
+  }
   switch (kind) {
     case Kind::c2c_fwd: p = Api::dft(rank, n, cin, cout, FFTW_FORWARD); break;
     case Kind::c2c_inv: p = Api::dft(rank, n, cin, cout, FFTW_BACKWARD); break;
@@ -195,6 +230,27 @@ void c2r_3d(const std::array<std::size_t, 3>& n, const cfloat* in, float* out) {
 void c2r_3d(const std::array<std::size_t, 3>& n, const cdouble* in, double* out) { c2r<DoubleApi>(3, n, in, out); }
 void c2c_3d(const std::array<std::size_t, 3>& n, const cfloat* in, cfloat* out, Direction d) {
   c2c<FloatApi>(3, n, in, out, d);
+}
+
+void c2c_2d_pitched(std::size_t n0, std::size_t n1, const cfloat* in, std::size_t in_pitch, cfloat* out,
+                    std::size_t out_pitch, Direction d) {
+  if (in_pitch < n1 || out_pitch < n1)
+    throw InternalError("fft: row pitch " + std::to_string(std::min(in_pitch, out_pitch)) + " below row length " +
+                        std::to_string(n1));
+  auto* i = const_cast<cfloat*>(in);
+  auto p = plan_for<FloatApi>(d == Direction::forward ? Kind::c2c_fwd : Kind::c2c_inv, 2, shape2(n0, n1), i, out,
+                              Layout{in_pitch, out_pitch, 0, 0});
+  FloatApi::exec_dft(p, reinterpret_cast<fftwf_complex*>(i), reinterpret_cast<fftwf_complex*>(out));
+}
+
+void c2c_1d_batch(std::size_t n, std::size_t count, const cfloat* in, std::size_t in_stride, std::size_t in_dist,
+                  cfloat* out, std::size_t out_stride, std::size_t out_dist, Direction d) {
+  if (count == 0) return;
+  if (in_stride == 0 || out_stride == 0) throw InternalError("fft: batch stride 0");
+  auto* i = const_cast<cfloat*>(in);
+  auto p = plan_for<FloatApi>(d == Direction::forward ? Kind::c2c_fwd : Kind::c2c_inv, 1, {n, count, 0}, i, out,
+                              Layout{in_stride, in_dist, out_stride, out_dist});
+  FloatApi::exec_dft(p, reinterpret_cast<fftwf_complex*>(i), reinterpret_cast<fftwf_complex*>(out));
 }
 
 void set_threads(int n) {

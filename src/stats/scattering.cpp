@@ -1,10 +1,13 @@
 // 2D wavelet scattering (DESIGN.md §6, exact definition there). Filters are
 // built once per slice shape. With `crop`, each convolution keeps only the
 // Fourier box where |ψ̂| > 1e-7 max|ψ̂| (shifted to the box centre, which only
-// changes the phase) and is inverted on a smaller grid, oversampled so that
-// means over the coarse samples match the full-grid means to the contract's
-// tolerance (checked against numpy in tests/stats/check_scattering.py).
+// changes the phase) and is inverted on a smaller power-of-two grid, oversampled
+// so that means over the coarse samples match the full-grid means to the
+// contract's tolerance (checked against numpy in tests/stats/check_scattering.py).
+// Inverse transforms run on rows padded past a power of two (cache sets) and, when
+// the box leaves rows or columns of the grid empty, in two 1D passes that skip them.
 #include <algorithm>
+#include <cmath>
 #include <numeric>
 
 #include "fft/fft.hpp"
@@ -45,14 +48,12 @@ long signed_index(std::size_t i, std::size_t n) {
   return i < (n + 1) / 2 ? static_cast<long>(i) : static_cast<long>(i) - static_cast<long>(n);
 }
 
-/// Smallest 2^a 3^b 5^c ≥ x (a fast FFT size), or n when that is not smaller than n.
-std::size_t nice_size(std::size_t x, std::size_t n) {
-  std::size_t best = n;
-  for (std::size_t p2 = 1; p2 < 2 * n; p2 *= 2)
-    for (std::size_t p3 = p2; p3 < 2 * n; p3 *= 3)
-      for (std::size_t p5 = p3; p5 < 2 * n; p5 *= 5)
-        if (p5 >= x && p5 < best) best = p5;
-  return best;
+/// Smallest power of two ≥ x, or n when that is not smaller than n. (With FFTW_ESTIMATE plans
+/// 96² and 192² padded-row transforms ran no faster than 128² and 256², measured.)
+std::size_t grid_size(std::size_t x, std::size_t n) {
+  std::size_t g = 1;
+  while (g < x) g *= 2;
+  return g < n ? g : n;
 }
 
 /// Smallest circular arc [start, start+len) of 0..n-1 covering every flagged index.
@@ -134,10 +135,9 @@ Bank build_bank(const ScatteringParams& p, std::size_t n1, std::size_t n2) {
         f.w2 = a2.second;
         f.c1 = f.w1 == n1 ? 0 : f.b1 + static_cast<long>(f.w1 / 2);
         f.c2 = f.w2 == n2 ? 0 : f.b2 + static_cast<long>(f.w2 / 2);
-        f.m1 = f.w1 == n1 ? n1 : nice_size(std::max({f.w1, static_cast<std::size_t>(fac * e1.second) + 1, minsz}), n1);
-        f.m2 = f.w2 == n2 ? n2 : nice_size(std::max({f.w2, static_cast<std::size_t>(fac * e2.second) + 1, minsz}), n2);
-        if (f.m1 == n1) f.w1 = n1, f.b1 = 0, f.c1 = 0;  // nothing to gain: use the whole axis
-        if (f.m2 == n2) f.w2 = n2, f.b2 = 0, f.c2 = 0;
+        f.m1 = f.w1 == n1 ? n1 : grid_size(std::max({f.w1, static_cast<std::size_t>(fac * static_cast<double>(e1.second)) + 1, minsz}), n1);
+        f.m2 = f.w2 == n2 ? n2 : grid_size(std::max({f.w2, static_cast<std::size_t>(fac * static_cast<double>(e2.second)) + 1, minsz}), n2);
+        // On a full axis the box still tells the two-pass inverse which rows/columns are empty.
       }
       f.value.resize(f.w1 * f.w2);
       for (std::size_t i = 0; i < f.w1; ++i)
@@ -163,11 +163,62 @@ Bank build_bank(const ScatteringParams& p, std::size_t n1, std::size_t n2) {
           need1 = std::max(need1, need(g.b1, g.w1, bank.n1));
           need2 = std::max(need2, need(g.b2, g.w2, bank.n2));
         }
-      f.u1 = need1 >= bank.n1 ? bank.n1 : nice_size(need1, bank.n1);
-      f.u2 = need2 >= bank.n2 ? bank.n2 : nice_size(need2, bank.n2);
+      f.u1 = need1 >= bank.n1 ? bank.n1 : grid_size(need1, bank.n1);
+      f.u2 = need2 >= bank.n2 ? bank.n2 : grid_size(need2, bank.n2);
     }
   return bank;
 }
+
+/// Complex elements added to each row of a work grid: rows of a power-of-two length laid
+/// end to end put a column's elements in a few cache sets, and FFTW_ESTIMATE plans for
+/// 256 × 256 then ran ~10× slower than with padded rows (bench_stats prints both).
+constexpr std::size_t row_pad = 8;
+
+/// Where the work grid holds non-zero values after a convolution: rows [start, start+len)
+/// (mod g1) of g2 values, or columns [start, start+len) (mod g2) of every row.
+struct Dirty {
+  std::size_t g1 = 0, g2 = 0, pitch = 0;
+  bool rows = true;
+  std::size_t start = 0, len = 0;
+};
+
+/// Scratch reused across calls on one thread (fresh pages fault on every first touch).
+/// `work` is all zeros outside `dirty`, so a convolution clears only what the last one wrote.
+struct Scratch {
+  fft::Buffer<cf> half, work, out, box;
+  fft::Buffer<float> u1;
+  Dirty dirty;
+  void fit_work(std::size_t n) {
+    if (work.size() >= n) return;
+    work = fft::Buffer<cf>(n);
+    std::fill(work.data(), work.data() + n, cf(0.0f, 0.0f));
+    dirty = Dirty{};
+  }
+  void clean() {
+    const Dirty& d = dirty;
+    const cf zero(0.0f, 0.0f);
+    if (d.rows) {
+      for (std::size_t t = 0; t < d.len; ++t) {
+        cf* row = work.data() + ((d.start + t) % d.g1) * d.pitch;
+        std::fill(row, row + d.g2, zero);
+      }
+    } else if (d.len > 0) {
+      const std::size_t first = std::min(d.len, d.g2 - d.start);
+      for (std::size_t r = 0; r < d.g1; ++r) {
+        cf* row = work.data() + r * d.pitch;
+        std::fill(row + d.start, row + d.start + first, zero);
+        std::fill(row, row + (d.len - first), zero);
+      }
+    }
+    dirty = Dirty{};
+  }
+  static void fit(fft::Buffer<cf>& b, std::size_t n) {
+    if (b.size() < n) b = fft::Buffer<cf>(n);
+  }
+  static void fit(fft::Buffer<float>& b, std::size_t n) {
+    if (b.size() < n) b = fft::Buffer<float>(n);
+  }
+};
 
 /// Full spectrum of a real p1 × p2 field (r2c, then the mirror half by Hermitian symmetry),
 /// so the per-filter gathers below are plain strided copies.
@@ -176,46 +227,180 @@ struct Spectrum {
   fft::Buffer<cf> data;
 };
 
-Spectrum forward(const float* real, std::size_t p1, std::size_t p2) {
+void forward(const float* real, std::size_t p1, std::size_t p2, Scratch& scratch, Spectrum& s) {
   const std::size_t h2 = p2 / 2 + 1;
-  fft::Buffer<cf> half(p1 * h2);
-  fft::r2c_2d(p1, p2, real, half.data());
-  Spectrum s{p1, p2, fft::Buffer<cf>(p1 * p2)};
+  Scratch::fit(scratch.half, p1 * h2);
+  Scratch::fit(s.data, p1 * p2);
+  s.p1 = p1;
+  s.p2 = p2;
+  fft::r2c_2d(p1, p2, real, scratch.half.data());
   for (std::size_t a = 0; a < p1; ++a) {
-    const cf* src = half.data() + a * h2;
-    const cf* mirror = half.data() + ((p1 - a) % p1) * h2;
+    const cf* src = scratch.half.data() + a * h2;
+    const cf* mirror = scratch.half.data() + ((p1 - a) % p1) * h2;
     cf* dst = s.data.data() + a * p2;
     for (std::size_t b = 0; b < h2; ++b) dst[b] = src[b];
     for (std::size_t b = h2; b < p2; ++b) dst[b] = std::conj(mirror[p2 - b]);
   }
-  return s;
 }
 
-/// |x⋆ψ| on a g1 × g2 grid from the spectrum of x, scaled to the fine-grid definition.
-void modulus_conv(const Spectrum& x, const Filter& f, std::size_t g1, std::size_t g2, fft::Buffer<cf>& work,
-                  float* out) {
-  std::fill(work.data(), work.data() + g1 * g2, cf(0.0f, 0.0f));
+/// Σ |w| over g1 rows of g2 complex values `pitch` apart; with Store, also out[i] = scale |w_i|
+/// (g1 × g2 contiguous). Eight float partial sums per row keep the loop vectorised (sqrtf
+/// vectorises with -fno-math-errno, see CMakeLists.txt); rows are summed in double.
+template <bool Store>
+[[gnu::always_inline]] inline double modulus_sum(const cf* work, std::size_t g1, std::size_t g2, std::size_t pitch,
+                                                 float scale, float* out) {
+  constexpr std::size_t lanes = 8;
+  double total = 0.0;
+  for (std::size_t r = 0; r < g1; ++r) {
+    const float* w = reinterpret_cast<const float*>(work + r * pitch);
+    float* o = Store ? out + r * g2 : nullptr;
+    float acc[lanes] = {};
+    std::size_t k = 0;
+    for (; k + lanes <= g2; k += lanes)
+      for (std::size_t t = 0; t < lanes; ++t) {
+        const float re = w[2 * (k + t)], im = w[2 * (k + t) + 1];
+        const float v = std::sqrt(re * re + im * im);
+        acc[t] += v;
+        if constexpr (Store) o[k + t] = v * scale;
+      }
+    float rest = 0.0f;
+    for (; k < g2; ++k) {
+      const float v = std::sqrt(w[2 * k] * w[2 * k] + w[2 * k + 1] * w[2 * k + 1]);
+      rest += v;
+      if constexpr (Store) o[k] = v * scale;
+    }
+    float row = rest;
+    for (std::size_t t = 0; t < lanes; ++t) row += acc[t];
+    total += static_cast<double>(row);
+  }
+  return total * static_cast<double>(scale);
+}
+
+// The modulus loops are compiled twice, for AVX2 and the baseline, and picked at load time
+// (the build targets baseline x86-64; FFTW picks its own SIMD at run time likewise).
+#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__)
+#define SPINFLIP_SIMD_CLONES [[gnu::target_clones("avx2", "default")]]
+#else
+#define SPINFLIP_SIMD_CLONES
+#endif
+SPINFLIP_SIMD_CLONES double modulus_mean_only(const cf* work, std::size_t g1, std::size_t g2, std::size_t pitch,
+                                              float scale) {
+  return modulus_sum<false>(work, g1, g2, pitch, scale, nullptr);
+}
+SPINFLIP_SIMD_CLONES double modulus_mean_store(const cf* work, std::size_t g1, std::size_t g2, std::size_t pitch,
+                                               float scale, float* out) {
+  return modulus_sum<true>(work, g1, g2, pitch, scale, out);
+}
+
+/// dst[t] = src[t] v[t] for t < n (complex times real, as interleaved floats).
+SPINFLIP_SIMD_CLONES void multiply_run(cf* dst, const cf* src, const float* v, std::size_t n) {
+  float* d = reinterpret_cast<float*>(dst);
+  const float* s = reinterpret_cast<const float*>(src);
+  for (std::size_t t = 0; t < n; ++t) {
+    d[2 * t] = s[2 * t] * v[t];
+    d[2 * t + 1] = s[2 * t + 1] * v[t];
+  }
+}
+
+/// Row length for a compact buffer of n complex values: a multiple of 8 (64-byte rows),
+/// moved off large powers of two like the work grid's rows.
+std::size_t compact_pitch(std::size_t n) {
+  std::size_t p = (n + 7) / 8 * 8;
+  if (p >= 64 && (p & (p - 1)) == 0) p += row_pad;
+  return p;
+}
+
+/// mean |x⋆ψ| on a g1 × g2 grid from the spectrum of x, scaled to the fine-grid definition;
+/// with `store`, the samples |x⋆ψ| too (g1 × g2 contiguous).
+///
+/// The box of x̂ψ̂ lands in grid rows [r0, r0+w1) and columns [d0, d0+w2) (mod the grid). The
+/// inverse is two passes of 1D transforms, and when the box leaves rows or columns empty the
+/// first pass skips them: either the box's rows (zero-padded to g2) are gathered into a
+/// compact buffer and transformed along axis 1 into the work grid, then every column; or the
+/// box's columns (zero-padded to g1), then every row. Column passes (stride `pitch`) cost about
+/// twice as much per element as row passes, and each pass runs faster out of place than in
+/// place (both measured on 256 × 256 and 256 × 128 grids), hence the cost model and buffers.
+double modulus_conv(const Spectrum& x, const Filter& f, std::size_t g1, std::size_t g2, Scratch& scratch,
+                    float* store) {
+  using fft::Direction;
+  const std::size_t pitch = g2 + row_pad;
+  scratch.fit_work(g1 * pitch);
+  Scratch::fit(scratch.out, g1 * pitch);
+  scratch.clean();  // the work grid is all zeros from here
+  scratch.dirty = Dirty{g1, g2, pitch, true, 0, g1};  // until the transforms below return (an exception)
+  cf* work = scratch.work.data();
+  cf* out = scratch.out.data();
+  const std::size_t w1 = f.w1, w2 = f.w2;
   const std::size_t s0 = static_cast<std::size_t>(wrap(f.b2, x.p2));
   const std::size_t d0 = static_cast<std::size_t>(wrap(f.b2 - f.c2, g2));
-  for (std::size_t i = 0; i < f.w1; ++i) {
-    const long m1 = f.b1 + static_cast<long>(i);
-    const cf* src = x.data.data() + static_cast<std::size_t>(wrap(m1, x.p1)) * x.p2;
-    cf* dst = work.data() + static_cast<std::size_t>(wrap(m1 - f.c1, g1)) * g2;
-    const float* v = f.value.data() + i * f.w2;
-    // The box row is at most two runs in the source and in the destination (each wraps once).
-    std::size_t k = 0, s = s0, d = d0;
-    while (k < f.w2) {
-      const std::size_t run = std::min({f.w2 - k, x.p2 - s, g2 - d});
-      for (std::size_t t = 0; t < run; ++t) dst[d + t] = src[s + t] * v[k + t];
+  const std::size_t r0 = static_cast<std::size_t>(wrap(f.b1 - f.c1, g1));
+  auto source_row = [&](std::size_t i) {
+    return x.data.data() + static_cast<std::size_t>(wrap(f.b1 + static_cast<long>(i), x.p1)) * x.p2;
+  };
+  // Box row i times ψ̂ into dst, whose column k of the box is at dst[(d + k) mod len]: at most
+  // two runs in the source and in the destination (each wraps once).
+  auto put_row = [&](std::size_t i, cf* dst, std::size_t d, std::size_t len) {
+    const cf* src = source_row(i);
+    const float* v = f.value.data() + i * w2;
+    std::size_t k = 0, s = s0;
+    while (k < w2) {
+      const std::size_t run = std::min({w2 - k, x.p2 - s, len - d});
+      multiply_run(dst + d, src + s, v + k, run);
       k += run;
       s = (s + run) % x.p2;
-      d = (d + run) % g2;
+      d = (d + run) % len;
+    }
+  };
+  const cf zero(0.0f, 0.0f);
+  if (w1 >= g1 && w2 >= g2) {  // nothing empty: gather in place, one 2D transform
+    for (std::size_t i = 0; i < w1; ++i) put_row(i, work + ((r0 + i) % g1) * pitch, d0, g2);
+    fft::c2c_2d_pitched(g1, g2, work, pitch, out, pitch, Direction::inverse);
+    scratch.dirty = Dirty{g1, g2, pitch, true, 0, g1};
+  } else {
+    const double row = static_cast<double>(g2) * std::log2(static_cast<double>(g2) + 1.0);
+    const double col = 2.0 * static_cast<double>(g1) * std::log2(static_cast<double>(g1) + 1.0);
+    const bool rows_first = static_cast<double>(w1) * row + static_cast<double>(g2) * col <
+                            static_cast<double>(w2) * col + static_cast<double>(g1) * row;
+    if (rows_first) {
+      const std::size_t bp = compact_pitch(g2);
+      Scratch::fit(scratch.box, w1 * bp);
+      cf* box = scratch.box.data();
+      for (std::size_t i = 0; i < w1; ++i) {
+        cf* dst = box + i * bp;
+        if (w2 < g2) {  // columns after the box, up to its start again (at most two runs)
+          const std::size_t z0 = (d0 + w2) % g2, zl = g2 - w2, first = std::min(zl, g2 - z0);
+          std::fill(dst + z0, dst + z0 + first, zero);
+          std::fill(dst, dst + (zl - first), zero);
+        }
+        put_row(i, dst, d0, g2);
+      }
+      const std::size_t first = std::min(w1, g1 - r0);  // grid rows [r0, g1), then [0, ...)
+      fft::c2c_1d_batch(g2, first, box, 1, bp, work + r0 * pitch, 1, pitch, Direction::inverse);
+      if (first < w1) fft::c2c_1d_batch(g2, w1 - first, box + first * bp, 1, bp, work, 1, pitch, Direction::inverse);
+      fft::c2c_1d_batch(g1, g2, work, pitch, 1, out, pitch, 1, Direction::inverse);
+      scratch.dirty = Dirty{g1, g2, pitch, true, r0, w1};
+    } else {
+      const std::size_t bp = compact_pitch(w2);
+      Scratch::fit(scratch.box, g1 * bp);
+      cf* box = scratch.box.data();
+      for (std::size_t r = 0; r < g1; ++r) {
+        const std::size_t i = (r + g1 - r0) % g1;  // box row landing on grid row r
+        if (i >= w1)
+          std::fill(box + r * bp, box + r * bp + w2, zero);
+        else
+          put_row(i, box + r * bp, 0, w2);
+      }
+      const std::size_t first = std::min(w2, g2 - d0);  // grid columns [d0, g2), then [0, ...)
+      fft::c2c_1d_batch(g1, first, box, bp, 1, work + d0, pitch, 1, Direction::inverse);
+      if (first < w2) fft::c2c_1d_batch(g1, w2 - first, box + first, bp, 1, work, pitch, 1, Direction::inverse);
+      fft::c2c_1d_batch(g2, g1, work, 1, pitch, out, 1, pitch, Direction::inverse);
+      scratch.dirty = Dirty{g1, g2, pitch, false, d0, w2};
     }
   }
-  fft::c2c_2d(g1, g2, work.data(), work.data(), fft::Direction::inverse);
   const float scale = 1.0f / static_cast<float>(x.p1 * x.p2);  // unnormalised inverse of an unnormalised forward
-  const float* w = reinterpret_cast<const float*>(work.data());
-  for (std::size_t i = 0; i < g1 * g2; ++i) out[i] = std::sqrt(w[2 * i] * w[2 * i] + w[2 * i + 1] * w[2 * i + 1]) * scale;
+  const double sum = store ? modulus_mean_store(out, g1, g2, pitch, scale, store)
+                           : modulus_mean_only(out, g1, g2, pitch, scale);
+  return sum / static_cast<double>(g1 * g2);
 }
 
 double mean(const float* v, std::size_t n) {
@@ -270,10 +455,11 @@ class ScatteringKernel final : public Kernel {
     check(g);
     const std::size_t n1 = g.shape[0], n2 = g.shape[1], J = p_.J, L = p_.L;
     auto bank = cache_.get(ShapeKey{n1, n2}, [&] { return build_bank(p_, n1, n2); });
+    thread_local Scratch scratch;
+    thread_local Spectrum x, ux;
     fft::Buffer<float> copy;
-    const auto x = forward(aligned(data, n1 * n2, copy), n1, n2);
-    fft::Buffer<cf> work(n1 * n2);
-    fft::Buffer<float> u1(n1 * n2), u2(n1 * n2);
+    forward(aligned(data, n1 * n2, copy), n1, n2, scratch, x);
+    Scratch::fit(scratch.u1, n1 * n2);
 
     const double s0 = mean(data, n1 * n2);
     std::vector<double> s1(J * L);
@@ -281,15 +467,14 @@ class ScatteringKernel final : public Kernel {
     for (std::size_t ja = 0; ja < J; ++ja)
       for (std::size_t la = 0; la < L; ++la) {
         const Filter& fa = bank->filters[ja * L + la];
-        modulus_conv(x, fa, fa.u1, fa.u2, work, u1.data());
-        s1[ja * L + la] = mean(u1.data(), fa.u1 * fa.u2);
-        if (ja + 1 == J) continue;
-        const auto ux = forward(u1.data(), fa.u1, fa.u2);
+        const bool last = ja + 1 == J;
+        s1[ja * L + la] = modulus_conv(x, fa, fa.u1, fa.u2, scratch, last ? nullptr : scratch.u1.data());
+        if (last) continue;
+        forward(scratch.u1.data(), fa.u1, fa.u2, scratch, ux);
         for (std::size_t jb = ja + 1; jb < J; ++jb)
           for (std::size_t lb = 0; lb < L; ++lb) {
             const Filter& fb = bank->filters[jb * L + lb];
-            modulus_conv(ux, fb, fb.m1, fb.m2, work, u2.data());
-            s2[((ja * L + la) * J + jb) * L + lb] = mean(u2.data(), fb.m1 * fb.m2);
+            s2[((ja * L + la) * J + jb) * L + lb] = modulus_conv(ux, fb, fb.m1, fb.m2, scratch, nullptr);
           }
       }
     if (p_.normalise)

@@ -107,3 +107,68 @@ TEST(Fft, ThreadsCanBeSet) {
   EXPECT_NEAR(out[0].real(), s, 1e-9);
   fft::set_threads(1);
 }
+
+// Pitched rows: the transform of the n0 × n1 values equals the DFT definition; the
+// padding between rows is neither read nor written.
+TEST(Fft, C2c2dPitchedMatchesDefinitionAndLeavesPaddingAlone) {
+  const std::size_t n0 = 6, n1 = 8, pin = 11, pout = 10;
+  std::mt19937 gen(4);
+  std::normal_distribution<float> g;
+  fft::Buffer<fft::cfloat> in(n0 * pin), out(n0 * pout);
+  std::vector<cd> x(n0 * n1);
+  for (std::size_t i = 0; i < n0 * pin; ++i) in[i] = {1e30f, 1e30f};  // padding: would spoil any output it reached
+  for (std::size_t a = 0; a < n0; ++a)
+    for (std::size_t b = 0; b < n1; ++b) x[a * n1 + b] = in[a * pin + b] = {g(gen), g(gen)};
+  for (std::size_t i = 0; i < n0 * pout; ++i) out[i] = {-7.0f, 3.0f};
+  for (auto d : {fft::Direction::forward, fft::Direction::inverse}) {
+    fft::c2c_2d_pitched(n0, n1, in.data(), pin, out.data(), pout, d);
+    const auto ref = naive_dft_2d(x, n0, n1, d == fft::Direction::forward ? -1 : 1);
+    for (std::size_t a = 0; a < n0; ++a) {
+      for (std::size_t b = 0; b < n1; ++b) EXPECT_LT(std::abs(cd(out[a * pout + b]) - ref[a * n1 + b]), 1e-4);
+      for (std::size_t b = n1; b < pout; ++b) EXPECT_EQ(out[a * pout + b], fft::cfloat(-7.0f, 3.0f));
+    }
+  }
+  // in place with the same pitch
+  fft::Buffer<fft::cfloat> io(n0 * pin);
+  for (std::size_t i = 0; i < n0 * pin; ++i) io[i] = in[i];
+  fft::c2c_2d_pitched(n0, n1, io.data(), pin, io.data(), pin, fft::Direction::forward);
+  const auto ref = naive_dft_2d(x, n0, n1, -1);
+  for (std::size_t a = 0; a < n0; ++a)
+    for (std::size_t b = 0; b < n1; ++b) EXPECT_LT(std::abs(cd(io[a * pin + b]) - ref[a * n1 + b]), 1e-4);
+  EXPECT_THROW(fft::c2c_2d_pitched(n0, n1, in.data(), n1 - 1, out.data(), pout, fft::Direction::forward),
+               std::exception);
+}
+
+// A strided batch: the columns of a padded 2D array, each against the 1D DFT definition.
+TEST(Fft, C2c1dBatchTransformsColumnsAndRows) {
+  const std::size_t rows = 7, cols = 5, pitch = 9;
+  std::mt19937 gen(6);
+  std::normal_distribution<float> g;
+  fft::Buffer<fft::cfloat> in(rows * pitch), out(rows * pitch);
+  for (std::size_t i = 0; i < rows * pitch; ++i) in[i] = {g(gen), g(gen)};
+  auto dft1 = [](const std::vector<cd>& v, int sign) {
+    std::vector<cd> r(v.size());
+    for (std::size_t k = 0; k < v.size(); ++k)
+      for (std::size_t t = 0; t < v.size(); ++t)
+        r[k] += v[t] * std::polar(1.0, sign * 2 * std::numbers::pi * double(k * t) / double(v.size()));
+    return r;
+  };
+  // columns: length rows, stride pitch, next transform 1 element on
+  fft::c2c_1d_batch(rows, cols, in.data(), pitch, 1, out.data(), pitch, 1, fft::Direction::inverse);
+  for (std::size_t c = 0; c < cols; ++c) {
+    std::vector<cd> v(rows);
+    for (std::size_t r = 0; r < rows; ++r) v[r] = in[r * pitch + c];
+    const auto ref = dft1(v, +1);
+    for (std::size_t r = 0; r < rows; ++r) EXPECT_LT(std::abs(cd(out[r * pitch + c]) - ref[r]), 1e-4);
+  }
+  // rows 2..4 only, in place: the other rows stay as they were
+  fft::Buffer<fft::cfloat> io(rows * pitch);
+  for (std::size_t i = 0; i < rows * pitch; ++i) io[i] = in[i];
+  fft::c2c_1d_batch(cols, 3, io.data() + 2 * pitch, 1, pitch, io.data() + 2 * pitch, 1, pitch, fft::Direction::forward);
+  for (std::size_t r = 0; r < rows; ++r) {
+    std::vector<cd> v(cols);
+    for (std::size_t c = 0; c < cols; ++c) v[c] = in[r * pitch + c];
+    const auto ref = r >= 2 && r < 5 ? dft1(v, -1) : v;
+    for (std::size_t c = 0; c < cols; ++c) EXPECT_LT(std::abs(cd(io[r * pitch + c]) - ref[c]), 1e-4);
+  }
+}

@@ -110,6 +110,16 @@ for shape in ((96, 160), (80, 200)):
     im = image(shape)
     r = measure(im, stats_text(6, 8))["scattering"]
     close(r["values"][0], reference(im, 6, 8), what=f"{shape[0]}x{shape[1]} J=6 L=8 cropped vs numpy")
+# the benchmarked configuration (bench/bench_stats.cpp: 256 x 256, J = 6, L = 8, all of S0, S1, S2):
+# the smooth non-Gaussian image, and white lognormal noise like the benchmark's slice (the most
+# small-scale power, so the coarse grids' aliasing is largest), cropped and at full resolution
+img256 = image((256, 256))
+white = np.exp(rng.standard_normal((256, 256))).astype(np.float32)
+for name, im in (("image", img256), ("white lognormal", white)):
+    ref = reference(im, 6, 8)
+    for crop in (True, False):
+        r = measure(im, stats_text(6, 8, crop=crop))["scattering"]
+        close(r["values"][0], ref, what=f"256x256 J=6 L=8 {name} crop={crop} vs numpy")
 r = measure(img2, stats_text(4, 4, extra="xi0 = 2.0\nsigma0 = 1.0\nslant = 0.7\n"))["scattering"]
 close(r["values"][0], reference(img2, 4, 4, xi0=2.0, sigma0=1.0, s=0.7), what="custom xi0/sigma0/slant vs numpy")
 

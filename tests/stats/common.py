@@ -51,7 +51,10 @@ def close(got, ref, rel=1e-4, floor=1e-6, what=""):
     bad = ~(np.abs(got - ref) <= rel * np.abs(ref) + floor * scale)
     bad &= ~(np.isnan(got) & np.isnan(ref))
     worst = np.nanmax(np.abs(got - ref) / np.maximum(np.abs(ref), 1e-300)) if ref.size else 0.0
-    check(not bad.any(), f"{what}: {bad.sum()} of {ref.size} outside tolerance (worst rel {worst:.2e})")
+    allowed = rel * np.abs(ref) + floor * scale
+    used = np.nanmax(np.abs(got - ref) / np.where(allowed > 0, allowed, np.inf)) if ref.size else 0.0
+    check(not bad.any(), f"{what}: {bad.sum()} of {ref.size} outside tolerance (worst rel {worst:.2e}, "
+                         f"{used:.2f} of the tolerance)")
 
 
 def finish():

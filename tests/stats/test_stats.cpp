@@ -115,12 +115,16 @@ TEST(StatsPower, HalfGridCountsEveryFullGridModeOnce) {
     const stats::Geometry g{shape, {1.0, 1.0, 1.0}};
     const auto axes = ks[0]->axes(g);
     for (const auto& a : axes)
-      if (a.name == "n_modes") EXPECT_EQ(std::get<std::vector<std::int64_t>>(a.values)[0], g.n_cells() - 1);
+      if (a.name == "n_modes") {
+        EXPECT_EQ(std::get<std::vector<std::int64_t>>(a.values)[0], g.n_cells() - 1);
+      }
   }
   for (auto shape : {std::vector<std::size_t>{9, 7}, {8, 10}}) {
     const stats::Geometry g{shape, {1.0, 1.0, 1.0}};
     for (const auto& a : ks[1]->axes(g))
-      if (a.name == "n_modes") EXPECT_EQ(std::get<std::vector<std::int64_t>>(a.values)[0], g.n_cells() - 1);
+      if (a.name == "n_modes") {
+        EXPECT_EQ(std::get<std::vector<std::int64_t>>(a.values)[0], g.n_cells() - 1);
+      }
   }
 }
 
@@ -147,7 +151,9 @@ TEST(StatsThreads, ConcurrentMeasureEqualsSerial) {
     for (auto& th : pool) th.join();
     for (std::size_t i = 0; i < fields.size(); ++i)
       for (std::size_t c = 0; c < serial[i].size(); ++c)
-        if (!std::isnan(serial[i][c])) EXPECT_EQ(serial[i][c], parallel[i][c]) << k->name() << " slice " << i;
+        if (!std::isnan(serial[i][c])) {
+          EXPECT_EQ(serial[i][c], parallel[i][c]) << k->name() << " slice " << i;
+        }
   }
 }
 

@@ -77,12 +77,15 @@ MemoryEstimate estimate_memory(const core::Config& cfg, std::size_t chunk_cells,
   const double padded_slab = slab_rows * np * 2 * half * float_bytes;  // in-place r2c SlabField
 
   // Generator: the Fourier field `lin` and its work SlabFields (one without reionization, two
-  // smoothed radii at a time with it), the δT_b slab and, with reionization, a 1-byte ionized
+  // smoothed radii at a time with it, three with the Zel'dovich option), the δT_b slab and, with reionization, a 1-byte ionized
   // flag per cell, the 2-byte |k| bin of every local half-spectrum mode (ModeBins) and the gains
   // of a pair of radii (3 × 65536 floats). On a one-rank group the fields, flags and bins are kept
   // between cones (sim/lightcone.cpp, WorkStorage), so they stay during the other phases too.
   const bool reionization = cfg.boolean("sources.reionization");
-  const double work_fields = reionization ? std::min<double>(2, static_cast<double>(cfg.integer("sources.n_radii"))) : 1;
+  double work_fields = reionization ? std::min<double>(2, static_cast<double>(cfg.integer("sources.n_radii"))) : 1;
+  // The Zel'dovich option moves the density with three displacement components at once (its
+  // ghost planes, a few per side on rank groups, are not counted).
+  if (cfg.boolean("cone.zeldovich_displacement")) work_fields = 3;
   double storage = (1 + work_fields) * padded_slab;
   if (reionization) storage += slab_rows * np * nl + slab_rows * np * half * 2.0;
   m.generator = storage + slab + (reionization ? 3 * 65536 * float_bytes : 0.0);

@@ -25,6 +25,7 @@
 #include "fft/fft.hpp"
 #include "sim/excursion_set.hpp"
 #include "sim/initial_conditions.hpp"
+#include "sim/zeldovich.hpp"
 
 namespace spinflip::sim {
 namespace {
@@ -315,6 +316,8 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
   cone.local_n0 = n0;
 
   // Evolved linear density; (1 + δ) clamped at 0 where linear theory overshoots (common practice).
+  // With the Zel'dovich option the density is moved instead; ionization and the velocity term
+  // still use the linear field (docs/lightcone.md).
   // Per-LOS-cell factors in float: the passes below are memory-bound and vectorize.
   std::vector<float> growth_f(nl), tb0_f(nl), fd_f(nl);
   for (std::size_t k = 0; k < nl; ++k) {
@@ -322,24 +325,37 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
     tb0_f[k] = static_cast<float>(tb0[k]);
     fd_f[k] = static_cast<float>(rate[k] * growth[k]);
   }
-  const std::size_t local_modes = n0 * np * lin.half_n2();
-  std::copy_n(lin.complex_data(), local_modes, work.complex_data());
-  work.inverse();
   cone.delta_tb_mK = core::Array3<float>(n0, np, nl);
   auto& tb = cone.delta_tb_mK;
   if (s.keep_density) cone.density.emplace(n0, np, nl);
-  for (std::size_t i = 0; i < n0; ++i)
-    for (std::size_t j = 0; j < np; ++j) {
-      const float* w = &work.real(i, j, 0);
-      float* t = &tb(i, j, 0);
-      float* dens = cone.density ? &(*cone.density)(i, j, 0) : nullptr;
-      for (std::size_t k = 0; k < nl; ++k) {
-        const float d = std::max(growth_f[k] * w[k], -1.0f);
-        t[k] = tb0_f[k] * (1.0f + d);
+  if (s.zeldovich_displacement) {
+    // 1 + δ from the Zel'dovich deposit (sim/zeldovich.cpp), left in tb; no clamp is needed
+    // (a deposit is never negative). Three transforms (ψ) instead of the linear density's one.
+    detail::zeldovich_density(lin, dx, growth, {&work, &field(ws, 2, group), &field(ws, 3, group)}, tb, group);
+    for (std::size_t i = 0; i < n0; ++i)
+      for (std::size_t j = 0; j < np; ++j) {
+        float* t = &tb(i, j, 0);
+        if (cone.density) {
+          float* dens = &(*cone.density)(i, j, 0);
+          for (std::size_t k = 0; k < nl; ++k) dens[k] = t[k] - 1.0f;
+        }
+        for (std::size_t k = 0; k < nl; ++k) t[k] *= tb0_f[k];
       }
-      if (dens != nullptr)
-        for (std::size_t k = 0; k < nl; ++k) dens[k] = std::max(growth_f[k] * w[k], -1.0f);
-    }
+  } else {
+    const std::size_t local_modes = n0 * np * lin.half_n2();
+    std::copy_n(lin.complex_data(), local_modes, work.complex_data());
+    work.inverse();
+    for (std::size_t i = 0; i < n0; ++i)
+      for (std::size_t j = 0; j < np; ++j) {
+        const float* w = &work.real(i, j, 0);
+        float* t = &tb(i, j, 0);
+        for (std::size_t k = 0; k < nl; ++k) t[k] = tb0_f[k] * (1.0f + std::max(growth_f[k] * w[k], -1.0f));
+        if (cone.density) {
+          float* dens = &(*cone.density)(i, j, 0);
+          for (std::size_t k = 0; k < nl; ++k) dens[k] = std::max(growth_f[k] * w[k], -1.0f);
+        }
+      }
+  }
 
   // Linear velocity gradient H⁻¹ dv_r/dr = −f D μ² δ0(k), clamped to ±velocity_gradient_max.
   if (s.velocity_gradient) {

@@ -459,7 +459,7 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
       cell_scale = fields[m - 1];
     }
     fft::SlabField& work_cell = *cell_scale;
-    // `work` now holds δ0 smoothed on the cell scale (the last radius is r_min).
+    // `work_cell` holds δ0 smoothed on the cell scale (the last radius is r_min).
     const double s_cell = mv.sigma2(c.mass_of_radius(r_min));
     // Partial ionization from the cell's own yield F(u), u = max(0, (δc/D − δ_cell)/√(2(σ²_min − σ²_cell))):
     // F tabulated in u on [0, u_top] (constant ζ: ζ erfc(u), one table; mass-dependent: one per LOS
@@ -467,7 +467,7 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
     const double u_top = 8.0;
     const std::size_t nu = eff.mass_dependent ? 512 : 16384;  // constant ζ: lerp error ≤ 1e-6 ζ
     std::vector<float> yield_table;
-    std::vector<float> a_los(nl), inv_b_los(nl), zf(nl);
+    std::vector<float> a_los(nl), inv_b_los(nl);
     for (std::size_t k = 0; k < nl; ++k) {
       const double smin_k = mv.sigma2(detail::min_halo_mass(s.min_virial_temperature_K, cone.z[k], c));
       a_los[k] = static_cast<float>(detail::delta_collapse / growth[k]);

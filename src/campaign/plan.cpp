@@ -55,7 +55,7 @@ std::string csv_number(double v) {
 }  // namespace
 
 double MemoryEstimate::peak() const {
-  return overhead + persistent + std::max({generator, instrument, kernels});
+  return overhead + persistent + std::max({generator, generator_kept + instrument, generator_kept + kernels});
 }
 
 // Buffers counted from src/sim/lightcone.cpp (generate_cone), src/instrument/instrument.cpp
@@ -76,10 +76,20 @@ MemoryEstimate estimate_memory(const core::Config& cfg, std::size_t chunk_cells,
   const double half = std::floor(nl / 2) + 1;
   const double padded_slab = slab_rows * np * 2 * half * float_bytes;  // in-place r2c SlabField
 
-  // Generator: `lin` and `work` SlabFields, the δT_b slab, the z_ion slab (reionization) and
-  // the 2-byte |k| bin of every local half-spectrum mode (ModeBins), plus its 65536 gains.
-  m.generator = 2 * padded_slab + slab;
-  if (cfg.boolean("sources.reionization")) m.generator += slab + slab_rows * np * half * 2.0 + 65536 * float_bytes;
+  // Generator: the Fourier field `lin` and its work SlabFields (one without reionization, two
+  // smoothed radii at a time with it, three with the Zel'dovich option), the δT_b slab and, with reionization, a 1-byte ionized
+  // flag per cell, the 2-byte |k| bin of every local half-spectrum mode (ModeBins) and the gains
+  // of a pair of radii (3 × 65536 floats). On a one-rank group the fields, flags and bins are kept
+  // between cones (sim/lightcone.cpp, WorkStorage), so they stay during the other phases too.
+  const bool reionization = cfg.boolean("sources.reionization");
+  double work_fields = reionization ? std::min<double>(2, static_cast<double>(cfg.integer("sources.n_radii"))) : 1;
+  // The Zel'dovich option moves the density with three displacement components at once (its
+  // ghost planes, a few per side on rank groups, are not counted).
+  if (cfg.boolean("cone.zeldovich_displacement")) work_fields = 3;
+  double storage = (1 + work_fields) * padded_slab;
+  if (reionization) storage += slab_rows * np * nl + slab_rows * np * half * 2.0;
+  m.generator = storage + slab + (reionization ? 3 * 65536 * float_bytes : 0.0);
+  m.generator_kept = m.group_size == 1 ? storage : 0.0;
 
 #ifdef SPINFLIP_HAVE_INSTRUMENT
   // Scenarios: one observing-time table per LOS cell and transverse Fourier cell (n_los × n_perp²
@@ -333,7 +343,8 @@ PlanReport plan(const Campaign& c, const PlanOptions& options) {
   const double peak = mem.peak();
   say("memory per rank (group size " + std::to_string(mem.group_size) + "): generator " + mb(mem.generator) +
       ", instrument " + mb(mem.instrument) + ", kernels " + mb(mem.kernels) + ", scenario tables " +
-      mb(mem.persistent) + ", fixed " + mb(mem.overhead) + "; peak " + mb(peak));
+      mb(mem.persistent) + ", generator storage kept between cones " + mb(mem.generator_kept) + ", fixed " +
+      mb(mem.overhead) + "; peak " + mb(peak));
   double limit_gb = 0;
   std::string limit_from;
   if (options.memory_limit_gb > 0) {

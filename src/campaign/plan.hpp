@@ -13,10 +13,11 @@ struct MemoryEstimate {
   std::size_t n_perp = 0, n_los = 0, group_size = 1;
   double persistent = 0;  // uv-coverage tables of the scenarios, held for the whole run
   double generator = 0;   // light-cone slabs and FFT work fields
+  double generator_kept = 0;  // the part of `generator` kept between cones (one-rank groups)
   double instrument = 0;  // gathered clean cone, observed copy, transverse spectrum
   double kernels = 0;     // gathered clean cone, observed copy, one chunk and its transform
   double overhead = 0;    // program, libraries, MPI buffers (fixed allowance)
-  double peak() const;    // overhead + persistent + max(phases)
+  double peak() const;    // overhead + persistent + max(generator, kept + each other phase)
 };
 /// chunk_cells: LOS cells of one chunk (0: assume the whole cone, an upper bound);
 /// group_size: ranks sharing a cone (0: campaign.group_size).

@@ -11,13 +11,6 @@ CounterRng::CounterRng(const EntryKey& key, std::uint64_t stream)
   key_[1] = stream;
 }
 
-std::array<std::uint64_t, 4> CounterRng::bits(std::uint64_t index) const {
-  r123::Philox4x64 generator;
-  r123::Philox4x64::ctr_type counter{{index, point_, realisation_, 0}};
-  auto out = generator(counter, key_);
-  return {out[0], out[1], out[2], out[3]};
-}
-
 double CounterRng::uniform(std::uint64_t index, int lane) const {
   return r123::u01<double>(bits(index)[static_cast<std::size_t>(lane & 3)]);
 }

@@ -33,8 +33,13 @@ class CounterRng {
   CounterRng(const EntryKey& key, std::uint64_t stream);
   CounterRng(const EntryKey& key, Stream stream) : CounterRng(key, static_cast<std::uint64_t>(stream)) {}
 
-  /// Four 64-bit words for index i (one Philox block).
-  std::array<std::uint64_t, 4> bits(std::uint64_t index) const;
+  /// Four 64-bit words for index i (one Philox block). Inline: hot loops draw millions.
+  std::array<std::uint64_t, 4> bits(std::uint64_t index) const {
+    r123::Philox4x64 generator;
+    const r123::Philox4x64::ctr_type counter{{index, point_, realisation_, 0}};
+    const auto out = generator(counter, key_);
+    return {out[0], out[1], out[2], out[3]};
+  }
   /// Uniform in (0, 1], lane 0..3 of index i.
   double uniform(std::uint64_t index, int lane) const;
   /// Two independent standard normals for index i (Box–Muller on lanes 0,1),

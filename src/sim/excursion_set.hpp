@@ -70,6 +70,11 @@ class Barrier {
     return z_of_delta_[g] * (1 - t) + z_of_delta_[g + 1] * t;
   }
   double lowest() const { return lowest_; }
+  /// The uniform-δ table behind redshift_reached: node g at δ = table_start() + g / table_inverse_step()
+  /// (for vectorized passes; empty when the barrier is never reached).
+  const std::vector<float>& z_table() const { return z_of_delta_; }
+  double table_start() const { return d0_; }
+  double table_inverse_step() const { return inv_dd_; }
   double highest_redshift() const { return z_.back(); }
   const std::vector<double>& delta_crit() const { return crit_; }
 

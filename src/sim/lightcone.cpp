@@ -1,15 +1,23 @@
 // generate_cone: initial conditions → evolved density and velocity term →
-// excursion-set z_ion(x) → δT_b. Peak memory: two slab fields (the Fourier
-// z = 0 density and one work field) plus three float fields (δT_b, z_ion and
-// one optional output each), whatever the number of radii or redshifts.
+// excursion-set ionization (per-cell flags, and z_ion(x) on request) → δT_b.
+// Peak memory: three slab fields (the Fourier z = 0 density and two work fields),
+// the δT_b field, one byte of flags and two of |k| bin per cell, plus one float
+// field per optional output, whatever the number of radii or redshifts.
 #include "sim/lightcone.hpp"
 
 #include <algorithm>
+#if defined(__SSE2__)
+#include <emmintrin.h>
+#endif
+#include <bit>
 #include <climits>
 #include <cstdint>
 #include <cmath>
 #include <limits>
+#include <deque>
+#include <memory>
 #include <numbers>
+#include <utility>
 #include <string>
 
 #include "core/errors.hpp"
@@ -17,70 +25,237 @@
 #include "fft/fft.hpp"
 #include "sim/excursion_set.hpp"
 #include "sim/initial_conditions.hpp"
+#include "sim/zeldovich.hpp"
 
 namespace spinflip::sim {
 namespace {
 
-/// dst(k) = gain(k∥², k²) · src(k) over this rank's modes.
+/// dst(k) = gain(k∥², k²) · src(k) over this rank's modes (gain evaluated in float).
 template <class Gain>
-void filter_into(fft::SlabField& src, fft::SlabField& dst, double cell_mpc, Gain gain) {
+void filter_into(const fft::SlabField& src, fft::SlabField& dst, double cell_mpc, Gain gain) {
   const auto& n = src.global_shape();
   const std::size_t half = src.half_n2();
-  std::vector<double> kz2(half);
+  std::vector<float> kz2(half), g(half);
   for (std::size_t kh = 0; kh < half; ++kh) {
     double k = 2.0 * std::numbers::pi * static_cast<double>(kh) / (static_cast<double>(n[2]) * cell_mpc);
-    kz2[kh] = k * k;
+    kz2[kh] = static_cast<float>(k * k);
   }
+  const fft::cfloat* a = src.complex_data();
+  fft::cfloat* b = dst.complex_data();
   for (std::size_t i = 0; i < src.local_n0(); ++i) {
     const double k0 = detail::wavenumber(src.local_start0() + i, n[0], cell_mpc);
     for (std::size_t j = 0; j < n[1]; ++j) {
       const double k1 = detail::wavenumber(j, n[1], cell_mpc);
-      const double kp2 = k0 * k0 + k1 * k1;
-      const fft::cfloat* a = &src.mode(i, j, 0);
-      fft::cfloat* b = &dst.mode(i, j, 0);
-      for (std::size_t kh = 0; kh < half; ++kh) b[kh] = a[kh] * static_cast<float>(gain(kz2[kh], kp2 + kz2[kh]));
+      const auto kp2 = static_cast<float>(k0 * k0 + k1 * k1);
+      for (std::size_t kh = 0; kh < half; ++kh) g[kh] = gain(kz2[kh], kp2 + kz2[kh]);
+      const std::size_t row = (i * n[1] + j) * half;
+      for (std::size_t kh = 0; kh < half; ++kh) b[row + kh] = a[row + kh] * g[kh];
     }
   }
 }
 
-/// Top-hat window in Fourier space (common practice).
-double top_hat(double x) { return x < 1e-3 ? 1.0 - x * x / 10.0 : 3.0 * (std::sin(x) - x * std::cos(x)) / (x * x * x); }
+/// Top-hat window in Fourier space (common practice), from sin x and cos x.
+double top_hat(double x, double sin_x, double cos_x) {
+  return x < 1e-3 ? 1.0 - x * x / 10.0 : 3.0 * (sin_x - x * cos_x) / (x * x * x);
+}
 
 /// |k| of every local mode rounded to one of 65536 bins (2 bytes per mode): a radius's window is
 /// then a table of 65536 gains, and smoothing is a gather and a multiply per mode. The bin width
 /// is k_max/65535, so kR is off by at most k_max R/131070 (≤ 1e-3 for R ≤ 40 cells).
 struct ModeBins {
+  static constexpr std::size_t n_bins = 65536;
   double dk = 1;
   std::vector<std::uint16_t> bin;
   ModeBins(const fft::SlabField& f, double cell_mpc) {
     const auto& n = f.global_shape();
     const double pi = std::numbers::pi;
     const double k_top = std::sqrt(3.0) * pi / cell_mpc * 1.0001;
-    dk = k_top / 65535.0;
+    dk = k_top / static_cast<double>(n_bins - 1);
     const std::size_t half = f.half_n2();
+    std::vector<double> kz2(half);
+    for (std::size_t kh = 0; kh < half; ++kh) {
+      const double k2 = 2.0 * pi * static_cast<double>(kh) / (static_cast<double>(n[2]) * cell_mpc);
+      kz2[kh] = k2 * k2;
+    }
     bin.resize(f.local_n0() * n[1] * half);
-    std::size_t q = 0;
+    const double inv_dk = 1.0 / dk;
     for (std::size_t i = 0; i < f.local_n0(); ++i) {
       const double k0 = detail::wavenumber(f.local_start0() + i, n[0], cell_mpc);
       for (std::size_t j = 0; j < n[1]; ++j) {
         const double k1 = detail::wavenumber(j, n[1], cell_mpc);
-        for (std::size_t kh = 0; kh < half; ++kh) {
-          const double k2 = 2.0 * pi * static_cast<double>(kh) / (static_cast<double>(n[2]) * cell_mpc);
-          bin[q++] = static_cast<std::uint16_t>(std::lround(std::sqrt(k0 * k0 + k1 * k1 + k2 * k2) / dk));
-        }
+        const double kp2 = k0 * k0 + k1 * k1;
+        std::uint16_t* b = bin.data() + (i * n[1] + j) * half;
+        for (std::size_t kh = 0; kh < half; ++kh)
+          b[kh] = static_cast<std::uint16_t>(static_cast<std::int32_t>(std::sqrt(kp2 + kz2[kh]) * inv_dk + 0.5));
       }
     }
   }
-  /// dst = W(|k| R) src over the local modes.
-  void smooth(const fft::SlabField& src, fft::SlabField& dst, double radius, std::vector<float>& gain) const {
-    gain.resize(65536);
-    for (std::size_t b = 0; b < gain.size(); ++b) gain[b] = static_cast<float>(top_hat(static_cast<double>(b) * dk * radius));
-    const fft::cfloat* a = src.complex_data();
-    fft::cfloat* out = dst.complex_data();
+  /// The window's gain per bin: sin and cos of b·dk·R by rotation (one exact anchor every 512
+  /// bins keeps the recurrence's rounding below 1e-13).
+  void window(double radius, std::vector<float>& gain) const {
+    gain.resize(n_bins);
+    const double step = dk * radius;
+    const double cs = std::cos(step), sn = std::sin(step);
+    double s = 0, c = 1;
+    for (std::size_t b = 0; b < n_bins; ++b) {
+      const double x = static_cast<double>(b) * step;
+      if (b % 512 == 0) {
+        s = std::sin(x);
+        c = std::cos(x);
+      }
+      gain[b] = static_cast<float>(top_hat(x, s, c));
+      const double s1 = s * cs + c * sn;
+      c = c * cs - s * sn;
+      s = s1;
+    }
+  }
+  /// dst[i] = W(|k| R_i) src over the local modes for the radii of one batch (at most
+  /// max_batch), reading src and the bins once. The gains are interleaved by bin so that one
+  /// mode's gains share a cache line. The outputs are streamed past the caches (each is 4 bytes
+  /// per cell, read next by its transform, so caching its lines first would only add traffic).
+  static constexpr std::size_t max_batch = 2;  // 4 would save ~0.5 ms per radius for 8 more B/cell
+  void smooth(const fft::SlabField& src, fft::SlabField* const* dst, const double* radius, std::size_t m,
+              std::vector<float>& gains, std::vector<float>& one) const {
+    gains.resize(n_bins * m);
+    for (std::size_t i = 0; i < m; ++i) {
+      window(radius[i], one);
+      for (std::size_t b = 0; b < n_bins; ++b) gains[b * m + i] = one[b];
+    }
+    switch (m) {
+      case 1: smooth_m<1>(src, dst, gains.data()); break;
+      default: smooth_m<2>(src, dst, gains.data()); break;
+    }
+  }
+  template <std::size_t M>
+  void smooth_m(const fft::SlabField& src, fft::SlabField* const* dst, const float* gains) const {
+    const std::uint16_t* bq = bin.data();
+    const float* a = reinterpret_cast<const float*>(src.complex_data());
+    float* out[M];
+    for (std::size_t i = 0; i < M; ++i) out[i] = reinterpret_cast<float*>(dst[i]->complex_data());
     const std::size_t n = bin.size();
-    for (std::size_t q = 0; q < n; ++q) out[q] = a[q] * gain[bin[q]];
+    std::size_t q = 0;
+#if defined(__SSE2__)
+    for (; q + 2 <= n; q += 2) {
+      const __m128 v = _mm_load_ps(a + 2 * q);
+      const float* g0 = gains + std::size_t{bq[q]} * M;
+      const float* g1 = gains + std::size_t{bq[q + 1]} * M;
+      for (std::size_t i = 0; i < M; ++i)
+        _mm_stream_ps(out[i] + 2 * q, _mm_mul_ps(v, _mm_set_ps(g1[i], g1[i], g0[i], g0[i])));
+    }
+    _mm_sfence();
+#endif
+    for (; q < n; ++q)
+      for (std::size_t i = 0; i < M; ++i) {
+        const float g = gains[std::size_t{bq[q]} * M + i];
+        out[i][2 * q] = a[2 * q] * g;
+        out[i][2 * q + 1] = a[2 * q + 1] * g;
+      }
   }
 };
+
+/// Z_R(δ): the barrier's inverse read from its uniform-δ table by linear interpolation (−inf
+/// below the lowest node, NaN → −inf). One definition for the per-cell passes and the
+/// thresholds below, so that both agree to the bit.
+struct BarrierLookup {
+  const float* table = nullptr;
+  int n_table = 0;
+  float d0 = 0, inv_dd = 0, lowest = 0;
+  explicit BarrierLookup(const detail::Barrier& b)
+      : table(b.z_table().data()), n_table(static_cast<int>(b.z_table().size())),
+        d0(static_cast<float>(b.table_start())), inv_dd(static_cast<float>(b.table_inverse_step())),
+        lowest(static_cast<float>(b.lowest())) {}
+};
+[[gnu::always_inline]] inline float barrier_z(float d, const float* __restrict table, int n_table, float d0,
+                                              float inv_dd, float lowest) {
+  const float top = static_cast<float>(n_table - 1);
+  const float v = (d - d0) * inv_dd;
+  float x = v > 0.0f ? v : 0.0f;  // NaN → 0
+  x = x < top ? x : top;
+  int g = static_cast<int>(x);
+  g = g < n_table - 2 ? g : n_table - 2;
+  const float t = x - static_cast<float>(g);
+  const float lo = table[g], hi = table[g + 1];
+  return d >= lowest ? lo + t * (hi - lo) : -std::numeric_limits<float>::infinity();
+}
+
+/// z_ion = max(z_ion, Z_R(δ_R)) over a run of cells. Branch-free so that it vectorizes (with
+/// AVX2 gathers on CPUs that have them: the clones use no FMA, so every clone gives the same bits).
+__attribute__((target_clones("avx2", "default"))) void raise_z_ion(const float* __restrict d, float* __restrict zi,
+                                                                   std::size_t n, const float* __restrict table,
+                                                                   int n_table, float d0, float inv_dd, float lowest) {
+  for (std::size_t k = 0; k < n; ++k) {
+    const float z = barrier_z(d[k], table, n_table, d0, inv_dd, lowest);
+    zi[k] = zi[k] > z ? zi[k] : z;
+  }
+}
+
+/// ionized |= δ_R ≥ threshold over one row (the threshold of each LOS cell's redshift).
+__attribute__((target_clones("avx2", "default"))) void flag_ionized(const float* __restrict d,
+                                                                    const float* __restrict threshold,
+                                                                    std::uint8_t* __restrict ionized, std::size_t n) {
+  for (std::size_t k = 0; k < n; ++k) ionized[k] |= d[k] >= threshold[k] ? std::uint8_t{1} : std::uint8_t{0};
+}
+
+/// Floats in the order of their values as 32-bit integers (−0 and +0 both map to 0).
+std::int64_t float_order(float f) {
+  const auto b = std::bit_cast<std::int32_t>(f);
+  return b >= 0 ? b : static_cast<std::int64_t>(INT32_MIN) - b;
+}
+float order_float(std::int64_t o) {
+  return std::bit_cast<float>(static_cast<std::int32_t>(o >= 0 ? o : static_cast<std::int64_t>(INT32_MIN) - o));
+}
+
+/// The smallest δ with Z_R(δ) ≥ z (Z_R as barrier_z evaluates it; +inf if none): a cell at
+/// redshift z is ionized by this radius exactly when δ_R ≥ threshold, since Z_R is
+/// non-decreasing. Bisection over the ordered floats.
+float threshold_for(const BarrierLookup& b, float z) {
+  auto zr = [&](float d) { return barrier_z(d, b.table, b.n_table, b.d0, b.inv_dd, b.lowest); };
+  if (zr(b.lowest) >= z) return b.lowest;
+  const float top = std::numeric_limits<float>::max();
+  if (!(zr(top) >= z)) return std::numeric_limits<float>::infinity();
+  std::int64_t lo = float_order(b.lowest), hi = float_order(top);  // zr(lo) < z <= zr(hi)
+  while (hi - lo > 1) {
+    const std::int64_t mid = lo + (hi - lo) / 2;
+    (zr(order_float(mid)) >= z ? hi : lo) = mid;
+  }
+  return order_float(hi);
+}
+
+/// The generator's work storage (Fourier field, work fields, |k| bins, ionized flags). On a single-rank
+/// group it is kept per thread between cones of the same shape and cell size: fresh fields
+/// cost their page faults and FFTW plans on every cone (each about a transform's time). Rank
+/// groups, which exist because a cone is too large for one rank, allocate it per cone.
+struct WorkStorage {
+  std::array<std::size_t, 3> shape{0, 0, 0};
+  double cell_mpc = 0;
+  std::deque<fft::SlabField> fields;  // [0]: the z = 0 Fourier density; [1..]: work fields (stable references)
+  std::optional<ModeBins> bins;
+  std::vector<std::uint8_t> ionized;  // 1: ionized at the cell's own redshift by some radius
+};
+
+WorkStorage& kept_storage(const std::array<std::size_t, 3>& shape, double cell_mpc, MPI_Comm group,
+                          std::unique_ptr<WorkStorage>& local) {
+  int size = 1;
+  SPINFLIP_CHECK_MPI(MPI_Comm_size(group, &size));
+  if (size > 1) {
+    local = std::make_unique<WorkStorage>();
+  } else {
+    thread_local std::unique_ptr<WorkStorage> kept;
+    if (!kept || kept->shape != shape || kept->cell_mpc != cell_mpc) {
+      kept.reset();
+      kept = std::make_unique<WorkStorage>();
+    }
+    local.reset();
+    return *kept;
+  }
+  return *local;
+}
+
+/// Field i of the storage, made on first use.
+fft::SlabField& field(WorkStorage& w, std::size_t i, MPI_Comm group) {
+  while (w.fields.size() <= i) w.fields.emplace_back(w.shape, group);
+  return w.fields[i];
+}
 
 detail::Efficiency efficiency_of(const ConeSettings& s) {
   detail::Efficiency e;
@@ -129,44 +304,88 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
     tb0[k] = cosmo::tb_prefactor_mK(z, c) * spin_factor;
   }
 
-  fft::SlabField lin(shape, group);
+  std::unique_ptr<WorkStorage> own;  // the storage of a rank group's cone (freed on return)
+  WorkStorage& ws = kept_storage(shape, dx, group, own);
+  ws.shape = shape;
+  ws.cell_mpc = dx;
+  fft::SlabField& lin = field(ws, 0, group);
   detail::draw_linear_density(lin, dx, c, key);
-  fft::SlabField work(shape, group);
+  fft::SlabField& work = field(ws, 1, group);
   const std::size_t n0 = lin.local_n0();
   cone.local_start0 = lin.local_start0();
   cone.local_n0 = n0;
 
   // Evolved linear density; (1 + δ) clamped at 0 where linear theory overshoots (common practice).
-  filter_into(lin, work, dx, [](double, double) { return 1.0; });
-  work.inverse();
+  // With the Zel'dovich option the density is moved instead; ionization and the velocity term
+  // still use the linear field (docs/lightcone.md).
+  // Per-LOS-cell factors in float: the passes below are memory-bound and vectorize.
+  std::vector<float> growth_f(nl), tb0_f(nl), fd_f(nl);
+  for (std::size_t k = 0; k < nl; ++k) {
+    growth_f[k] = static_cast<float>(growth[k]);
+    tb0_f[k] = static_cast<float>(tb0[k]);
+    fd_f[k] = static_cast<float>(rate[k] * growth[k]);
+  }
   cone.delta_tb_mK = core::Array3<float>(n0, np, nl);
   auto& tb = cone.delta_tb_mK;
   if (s.keep_density) cone.density.emplace(n0, np, nl);
-  for (std::size_t i = 0; i < n0; ++i)
-    for (std::size_t j = 0; j < np; ++j)
-      for (std::size_t k = 0; k < nl; ++k) {
-        const double d = std::max(growth[k] * work.real(i, j, k), -1.0);
-        tb(i, j, k) = static_cast<float>(tb0[k] * (1.0 + d));
-        if (cone.density) (*cone.density)(i, j, k) = static_cast<float>(d);
+  if (s.zeldovich_displacement) {
+    // 1 + δ from the Zel'dovich deposit (sim/zeldovich.cpp), left in tb; no clamp is needed
+    // (a deposit is never negative). Three transforms (ψ) instead of the linear density's one.
+    detail::zeldovich_density(lin, dx, growth, {&work, &field(ws, 2, group), &field(ws, 3, group)}, tb, group);
+    for (std::size_t i = 0; i < n0; ++i)
+      for (std::size_t j = 0; j < np; ++j) {
+        float* t = &tb(i, j, 0);
+        if (cone.density) {
+          float* dens = &(*cone.density)(i, j, 0);
+          for (std::size_t k = 0; k < nl; ++k) dens[k] = t[k] - 1.0f;
+        }
+        for (std::size_t k = 0; k < nl; ++k) t[k] *= tb0_f[k];
       }
+  } else {
+    const std::size_t local_modes = n0 * np * lin.half_n2();
+    std::copy_n(lin.complex_data(), local_modes, work.complex_data());
+    work.inverse();
+    for (std::size_t i = 0; i < n0; ++i)
+      for (std::size_t j = 0; j < np; ++j) {
+        const float* w = &work.real(i, j, 0);
+        float* t = &tb(i, j, 0);
+        for (std::size_t k = 0; k < nl; ++k) t[k] = tb0_f[k] * (1.0f + std::max(growth_f[k] * w[k], -1.0f));
+        if (cone.density) {
+          float* dens = &(*cone.density)(i, j, 0);
+          for (std::size_t k = 0; k < nl; ++k) dens[k] = std::max(growth_f[k] * w[k], -1.0f);
+        }
+      }
+  }
 
   // Linear velocity gradient H⁻¹ dv_r/dr = −f D μ² δ0(k), clamped to ±velocity_gradient_max.
   if (s.velocity_gradient) {
-    filter_into(lin, work, dx, [](double kz2, double k2) { return k2 > 0 ? -kz2 / k2 : 0.0; });
+    filter_into(lin, work, dx, [](float kz2, float k2) { return k2 > 0 ? -kz2 / k2 : 0.0f; });
     work.inverse();
-    const double cap = s.velocity_gradient_max;
+    const auto cap = static_cast<float>(s.velocity_gradient_max);
     for (std::size_t i = 0; i < n0; ++i)
-      for (std::size_t j = 0; j < np; ++j)
-        for (std::size_t k = 0; k < nl; ++k) {
-          const double g = std::clamp(rate[k] * growth[k] * work.real(i, j, k), -cap, cap);
-          tb(i, j, k) = static_cast<float>(tb(i, j, k) / (1.0 + g));
-        }
+      for (std::size_t j = 0; j < np; ++j) {
+        const float* w = &work.real(i, j, 0);
+        float* t = &tb(i, j, 0);
+        for (std::size_t k = 0; k < nl; ++k) t[k] /= 1.0f + std::clamp(fd_f[k] * w[k], -cap, cap);
+      }
   }
 
-  std::vector<double> x_hi_sum(nl, 0.0);
+  std::vector<double> x_hi_sum(nl, 0.0), tb_sum(nl, 0.0);
   if (s.reionization) {
-    const double ninf = -std::numeric_limits<double>::infinity();
-    core::Array3<float> z_ion(n0, np, nl, static_cast<float>(ninf));
+    // Per cell: ionized at its own redshift or not (δT_b needs no more), and z_ion(x) when the
+    // caller keeps it (the same barrier lookups: a cell is flagged exactly when z_ion ≥ its z).
+    ws.ionized.assign(n0 * np * nl, 0);
+    std::uint8_t* ionized = ws.ionized.data();
+    core::Array3<float> z_ion;
+    if (s.keep_z_ion) z_ion = core::Array3<float>(n0, np, nl, -std::numeric_limits<float>::infinity());
+    // The redshift each LOS cell is compared at: the smallest float ≥ z_k (z_ion is a float).
+    std::vector<float> z_cell(nl);
+    for (std::size_t k = 0; k < nl; ++k) {
+      z_cell[k] = static_cast<float>(cone.z[k]);
+      if (static_cast<double>(z_cell[k]) < cone.z[k])
+        z_cell[k] = std::nextafter(z_cell[k], std::numeric_limits<float>::infinity());
+    }
+    std::vector<float> threshold(nl);
     const detail::Efficiency eff = efficiency_of(s);
 
     // Redshift nodes of the barrier tables span the cone with a small margin.
@@ -186,8 +405,15 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
     std::vector<double> smin(nz);
     for (std::size_t t = 0; t < nz; ++t) smin[t] = mv.sigma2(mmin[t]);
 
-    const ModeBins bins(lin, dx);
-    std::vector<float> gain;
+    if (!ws.bins) ws.bins.emplace(lin, dx);
+    const ModeBins& bins = *ws.bins;
+    // The radii whose barrier some cell can reach, and always the last (r_min: its smoothed field
+    // also gives the cells' own collapsed fraction below).
+    struct Radius {
+      double radius;
+      std::optional<detail::Barrier> barrier;
+    };
+    std::vector<Radius> radii;
     for (std::size_t r = 0; r < s.n_radii; ++r) {
       const double frac = static_cast<double>(r) / static_cast<double>(s.n_radii - 1);
       const double radius = r_max * std::pow(r_min / r_max, frac);
@@ -198,74 +424,112 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
         crit[t] = u < 0 ? std::numeric_limits<double>::infinity()
                         : detail::delta_collapse / dn[t] - u * std::sqrt(2.0 * (smin[t] - s_r));
       }
-      const detail::Barrier barrier(zn, crit);
-      if (!std::isfinite(barrier.lowest())) continue;  // no cell can be ionized at this radius
-      bins.smooth(lin, work, radius, gain);
-      work.inverse();
-      // Cells below the lowest barrier (most of them at large radii) cost one comparison; cells
-      // already ionized at the top of the table cannot rise further.
-      const float lowest = static_cast<float>(barrier.lowest());
-      const float z_top = static_cast<float>(barrier.highest_redshift());
-      for (std::size_t i = 0; i < n0; ++i)
-        for (std::size_t j = 0; j < np; ++j) {
-          const float* d = &work.real(i, j, 0);
-          float* zi = &z_ion(i, j, 0);
-          for (std::size_t k = 0; k < nl; ++k)
-            if (d[k] >= lowest && zi[k] < z_top)
-              zi[k] = std::max(zi[k], static_cast<float>(barrier.redshift_reached(d[k])));
-        }
+      detail::Barrier barrier(zn, crit);
+      const bool reachable = std::isfinite(barrier.lowest());
+      if (reachable || r + 1 == s.n_radii)
+        radii.push_back({radius, reachable ? std::optional<detail::Barrier>(std::move(barrier)) : std::nullopt});
     }
-    // `work` now holds δ0 smoothed on the cell scale (the last radius is r_min).
+    // Radii go in pairs of smoothed fields: the transforms are the same, but the Fourier field
+    // and the bins are read once per pair. Peak memory: 2 work fields, whatever the number of radii.
+    const std::size_t batch_size = std::min(ModeBins::max_batch, radii.size());
+    std::vector<fft::SlabField*> fields;
+    for (std::size_t f = 0; f < batch_size; ++f) fields.push_back(&field(ws, 1 + f, group));
+    std::vector<float> gains, one;
+    fft::SlabField* cell_scale = nullptr;  // δ0 smoothed on r_min, in real space
+    for (std::size_t r0 = 0; r0 < radii.size(); r0 += batch_size) {
+      const std::size_t m = std::min(batch_size, radii.size() - r0);
+      double rad[ModeBins::max_batch];
+      for (std::size_t i = 0; i < m; ++i) rad[i] = radii[r0 + i].radius;
+      bins.smooth(lin, fields.data(), rad, m, gains, one);
+      for (std::size_t i = 0; i < m; ++i) fields[i]->inverse();
+      for (std::size_t f = 0; f < m; ++f) {
+        const auto& barrier = radii[r0 + f].barrier;
+        if (!barrier) continue;
+        const BarrierLookup look(*barrier);
+        for (std::size_t k = 0; k < nl; ++k) threshold[k] = threshold_for(look, z_cell[k]);
+        const std::size_t pad = fields[f]->padded_n2();
+        const float* d = fields[f]->real_data();
+        for (std::size_t row = 0; row < n0 * np; ++row)
+          flag_ionized(d + row * pad, threshold.data(), ionized + row * nl, nl);
+        if (s.keep_z_ion)  // one field at a time: its 16 kB table stays in L1 for the gathers
+          for (std::size_t row = 0; row < n0 * np; ++row)
+            raise_z_ion(d + row * pad, z_ion.data.data() + row * nl, nl, look.table, look.n_table, look.d0,
+                        look.inv_dd, look.lowest);
+      }
+      cell_scale = fields[m - 1];
+    }
+    fft::SlabField& work_cell = *cell_scale;
+    // `work_cell` holds δ0 smoothed on the cell scale (the last radius is r_min).
     const double s_cell = mv.sigma2(c.mass_of_radius(r_min));
-    // Partial ionization from the cell's own yield, per LOS cell: F(u) tabulated in u.
-    const std::size_t nu = 512;
+    // Partial ionization from the cell's own yield F(u), u = max(0, (δc/D − δ_cell)/√(2(σ²_min − σ²_cell))):
+    // F tabulated in u on [0, u_top] (constant ζ: ζ erfc(u), one table; mass-dependent: one per LOS
+    // cell), read by linear interpolation. erfc(8) ≈ 1e-29, so F = 0 beyond u_top.
     const double u_top = 8.0;
-    std::vector<double> smin_los(nl), yield_table;
-    for (std::size_t k = 0; k < nl; ++k)
-      smin_los[k] = mv.sigma2(detail::min_halo_mass(s.min_virial_temperature_K, cone.z[k], c));
-    if (s.partial_ionization && eff.mass_dependent) {
-      yield_table.resize(nl * nu);
-      for (std::size_t k = 0; k < nl; ++k)
+    const std::size_t nu = eff.mass_dependent ? 512 : 16384;  // constant ζ: lerp error ≤ 1e-6 ζ
+    std::vector<float> yield_table;
+    std::vector<float> a_los(nl), inv_b_los(nl);
+    for (std::size_t k = 0; k < nl; ++k) {
+      const double smin_k = mv.sigma2(detail::min_halo_mass(s.min_virial_temperature_K, cone.z[k], c));
+      a_los[k] = static_cast<float>(detail::delta_collapse / growth[k]);
+      // No halo above M_min fits in the cell: u = +inf, F = 0.
+      inv_b_los[k] = smin_k > s_cell ? static_cast<float>(1.0 / std::sqrt(2.0 * (smin_k - s_cell))) : 0.0f;
+      if (eff.mass_dependent && s.partial_ionization) {
+        if (yield_table.empty()) yield_table.resize(nl * nu);
         for (std::size_t q = 0; q < nu; ++q)
-          yield_table[k * nu + q] = detail::ionizing_yield(
-              eff, mv, u_top * static_cast<double>(q) / static_cast<double>(nu - 1), s_cell, smin_los[k]);
+          yield_table[k * nu + q] = static_cast<float>(std::min(
+              1.0, detail::ionizing_yield(eff, mv, u_top * static_cast<double>(q) / static_cast<double>(nu - 1),
+                                          s_cell, smin_k)));
+      }
     }
-    auto partial = [&](std::size_t k, double delta0) -> double {
-      if (!(smin_los[k] > s_cell)) return 0.0;
-      const double u = std::max(0.0, (detail::delta_collapse / growth[k] - delta0) /
-                                         std::sqrt(2.0 * (smin_los[k] - s_cell)));
-      if (!eff.mass_dependent) return std::min(1.0, eff.zeta * std::erfc(u));
-      if (u >= u_top) return 0.0;
-      const double x = u / u_top * static_cast<double>(nu - 1);
-      const auto q = std::min(static_cast<std::size_t>(x), nu - 2);
-      const double w = x - static_cast<double>(q);
-      return std::min(1.0, yield_table[k * nu + q] * (1 - w) + yield_table[k * nu + q + 1] * w);
-    };
+    if (!eff.mass_dependent && s.partial_ionization) {
+      yield_table.resize(nu);
+      for (std::size_t q = 0; q < nu; ++q)
+        yield_table[q] = static_cast<float>(
+            std::min(1.0, eff.zeta * std::erfc(u_top * static_cast<double>(q) / static_cast<double>(nu - 1))));
+    }
+    const auto scale = static_cast<float>(static_cast<double>(nu - 1) / u_top);
+    const auto top = static_cast<float>(nu - 1);
+    const std::size_t stride = eff.mass_dependent ? nu : 0;
 
     if (s.keep_x_hi) cone.x_hi.emplace(n0, np, nl);
+    std::vector<float> xrow(nl);
     for (std::size_t i = 0; i < n0; ++i)
-      for (std::size_t j = 0; j < np; ++j)
+      for (std::size_t j = 0; j < np; ++j) {
+        const std::uint8_t* flag = ionized + (i * np + j) * nl;
+        const float* d = &work_cell.real(i, j, 0);
         for (std::size_t k = 0; k < nl; ++k) {
-          double x_hi = 1.0;
-          if (z_ion(i, j, k) >= cone.z[k]) {
-            x_hi = 0.0;
-          } else if (s.partial_ionization) {
-            x_hi = 1.0 - partial(k, work.real(i, j, k));
+          float x_hi = 1.0f;
+          if (flag[k] != 0) {
+            x_hi = 0.0f;
+          } else if (s.partial_ionization && inv_b_los[k] > 0.0f) {
+            const float u = std::max(0.0f, (a_los[k] - d[k]) * inv_b_los[k]);
+            const float x = std::min(top, u * scale);
+            const auto q = std::min(static_cast<std::size_t>(x), nu - 2);
+            const float w = x - static_cast<float>(q);
+            const float* y = yield_table.data() + k * stride + q;
+            x_hi = 1.0f - (y[0] + w * (y[1] - y[0]));
           }
-          tb(i, j, k) = static_cast<float>(tb(i, j, k) * x_hi);
-          if (cone.x_hi) (*cone.x_hi)(i, j, k) = static_cast<float>(x_hi);
-          x_hi_sum[k] += x_hi;
+          xrow[k] = x_hi;
         }
+        float* t = &tb(i, j, 0);
+        for (std::size_t k = 0; k < nl; ++k) {
+          t[k] *= xrow[k];
+          x_hi_sum[k] += xrow[k];
+          tb_sum[k] += t[k];
+        }
+        if (cone.x_hi) std::copy(xrow.begin(), xrow.end(), &(*cone.x_hi)(i, j, 0));
+      }
     if (s.keep_z_ion) cone.z_ion = std::move(z_ion);
   } else {
     for (std::size_t k = 0; k < nl; ++k) x_hi_sum[k] = static_cast<double>(n0 * np);
     if (s.keep_x_hi) cone.x_hi.emplace(n0, np, nl, 1.0f);
+    for (std::size_t i = 0; i < n0; ++i)
+      for (std::size_t j = 0; j < np; ++j) {
+        const float* t = &tb(i, j, 0);
+        for (std::size_t k = 0; k < nl; ++k) tb_sum[k] += t[k];
+      }
   }
 
-  std::vector<double> tb_sum(nl, 0.0);
-  for (std::size_t i = 0; i < n0; ++i)
-    for (std::size_t j = 0; j < np; ++j)
-      for (std::size_t k = 0; k < nl; ++k) tb_sum[k] += tb(i, j, k);
   allreduce_sum(x_hi_sum, group);
   allreduce_sum(tb_sum, group);
   const double plane = static_cast<double>(np * np);

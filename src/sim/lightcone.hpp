@@ -38,6 +38,7 @@ struct ConeSettings {
   double z_min = 6.0, z_max = 10.0;  // the band the cone must cover (near end at z_min)
   bool velocity_gradient = true;
   double velocity_gradient_max = 0.5;  // clamp on |H^-1 dv_r/dr|
+  bool zeldovich_displacement = false;  // density moved by D ψ (CIC deposit) instead of linear D δ0
   bool reionization = true;
   SourceModel model = SourceModel::constant;
   double ionizing_efficiency = 30.0;

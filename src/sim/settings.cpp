@@ -28,6 +28,9 @@ void declare_keys(core::Schema& s) {
          .doc = "include the linear line-of-sight velocity-gradient factor (1 + H⁻¹ dv_r/dr)⁻¹"});
   s.add({.path = "cone.velocity_gradient_max", .type = ValueType::real, .default_value = 0.5, .min = 0.0,
          .max = 0.9, .min_exclusive = true, .doc = "clamp on |H⁻¹ dv_r/dr| (linear theory breaks down beyond)"});
+  s.add({.path = "cone.zeldovich_displacement", .type = ValueType::boolean, .default_value = false,
+         .doc = "move the density by the Zel'dovich displacement D(z) ψ (cloud-in-cell deposit; mass carried past "
+                "the cone's line-of-sight ends is lost); ionization and velocity stay linear"});
 
   s.add_table("sources", "Ionizing sources and the excursion-set reionization model.");
   s.add({.path = "sources.reionization", .type = ValueType::boolean, .default_value = true,
@@ -139,6 +142,7 @@ ConeSettings settings_from(const core::Config& cfg) {
   s.z_max = cfg.real("cone.z_max");
   s.velocity_gradient = cfg.boolean("cone.velocity_gradient");
   s.velocity_gradient_max = cfg.real("cone.velocity_gradient_max");
+  s.zeldovich_displacement = cfg.boolean("cone.zeldovich_displacement");
   s.reionization = cfg.boolean("sources.reionization");
   s.model = cfg.string("sources.model") == "mass_dependent" ? SourceModel::mass_dependent : SourceModel::constant;
   s.ionizing_efficiency = cfg.real("sources.ionizing_efficiency");

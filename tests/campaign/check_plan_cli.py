@@ -84,11 +84,13 @@ big = setting(setting(tiny, "cone", "n_perp", 64), "cone", "n_los", 512)
 g1, i1 = memory(big)
 g2, i2 = memory(setting(big, "campaign", "group_size", 2))
 g4, i4 = memory(setting(big, "campaign", "group_size", 4))
-# Cone of 64² × 512 floats = 8.4 MB; 4 generator buffers + the ModeBins table ≈ 4.3 cones.
+# Cone of 64² × 512 floats = 8.4 MB; 3 slab fields + δT_b + the ionized flags (¼) + the ModeBins
+# table (¼) ≈ 4.5 cones (src/sim/lightcone.cpp).
 cone_mb = 64 * 64 * 512 * 4 / 1e6
 if not 3.5 * cone_mb < g1 < 5.5 * cone_mb:
     failures.append(f"generator estimate {g1} MB not 3.5–5.5 cones of {cone_mb} MB")
-if abs(g2 / g1 - 0.5) > 0.01 or abs(g4 / g1 - 0.25) > 0.01:  # 64 rows split evenly: exact halves
+# 64 rows split evenly: exact halves, but for the 0.8 MB of window gains every rank holds whole.
+if abs(g2 / g1 - 0.5) > 0.015 or abs(g4 / g1 - 0.25) > 0.02:
     failures.append(f"generator memory does not scale with the group: {g1}, {g2}, {g4} MB")
 if abs(i4 - i1) > 0.01 * i1 or not 2.9 * cone_mb < i1 < 3.2 * cone_mb:  # 2 cones + a spectrum ≈ 3.03 cones
     failures.append(f"instrument memory should be whole cones, independent of the group: {i1}, {i2}, {i4} MB")

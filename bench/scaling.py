@@ -1,11 +1,14 @@
 #!/usr/bin/python3
-"""Task-farm weak scaling: entries per second of `spinflip run` on 1 rank and on
-2 ranks (each rank doing the same number of entries), measured in one invocation.
+"""Task-farm scaling: entries per second of `spinflip run` on 1 rank and on
+2 ranks, measured in one invocation.
 
     /usr/bin/python3 bench/scaling.py [--campaign jobs/demo/campaign.toml]
-        [--entries-per-rank 20] [--rounds 3] [--spinflip build/src/cli/spinflip]
+        [--entries 40] [--rounds 3] [--spinflip build/src/cli/spinflip]
 
-Runs alternate 1, 2, 1, 2, ... ranks so that a change in the machine's load hits
+Both rank counts run the same first --entries entries of the campaign (entries
+differ in cost from point to point, so different entries would bias the ratio).
+A short 1-rank run first warms the page cache and is not counted. Runs then
+alternate 1, 2, 1, 2, ... ranks so that a change in the machine's load hits
 both rank counts alike. The rate of each run is the driver's own (its last log
 line: this run's entries over the time since the task farm started, so the
 one-time setup is not counted). Prints every run, then the ratio of the mean
@@ -24,23 +27,22 @@ root = os.path.dirname(here)
 
 ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
 ap.add_argument("--campaign", default=os.path.join(root, "jobs", "demo", "campaign.toml"))
-ap.add_argument("--entries-per-rank", type=int, default=20)
+ap.add_argument("--entries", type=int, default=40)
 ap.add_argument("--rounds", type=int, default=3)
 ap.add_argument("--spinflip", default=os.path.join(root, "build", "src", "cli", "spinflip"))
 args = ap.parse_args()
-if args.entries_per_rank < 1 or args.rounds < 1:
-    sys.exit("scaling.py: --entries-per-rank and --rounds must be >= 1")
+if args.entries < 2 or args.rounds < 1:
+    sys.exit("scaling.py: --entries must be >= 2 and --rounds >= 1")
 
 env = dict(os.environ, OMPI_ALLOW_RUN_AS_ROOT="1", OMPI_ALLOW_RUN_AS_ROOT_CONFIRM="1")
 rate_re = re.compile(r"rank-seconds .*; ([\d.]+) entries/s")
 
 
-def run(ranks, out_dir):
+def run(ranks, out_dir, n):
     out = os.path.join(out_dir, f"scaling-{ranks}.h5")
     for f in (out, out + ".progress.json"):
         if os.path.exists(f):
             os.remove(f)
-    n = ranks * args.entries_per_rank
     cmd = ["mpiexec", "-n", str(ranks), "--oversubscribe", args.spinflip, "run", args.campaign, "-o", out,
            "--group-size", "1", "--max-entries", str(n)]
     p = subprocess.run(cmd, env=env, capture_output=True, text=True)
@@ -57,10 +59,11 @@ def load():
 
 with tempfile.TemporaryDirectory(prefix="spinflip-scaling-") as tmp:
     load_before = load()
+    run(1, tmp, 2)  # warm-up, not counted
     rates = {1: [], 2: []}
     for r in range(args.rounds):
         for ranks in (1, 2):
-            n, rate = run(ranks, tmp)
+            n, rate = run(ranks, tmp, args.entries)
             rates[ranks].append(rate)
             print(f"round {r + 1}: {ranks} rank{'s' if ranks > 1 else ''}, {n} entries: {rate:.3f} entries/s",
                   flush=True)

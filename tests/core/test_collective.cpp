@@ -3,15 +3,12 @@
 #include <mpi.h>
 
 #include "core/collective.hpp"
+#include "../support/mpi_helpers.hpp"
 
 using namespace spinflip;
+using test_support::world_rank;
 
 namespace {
-int world_rank() {
-  int r = 0;
-  MPI_Comm_rank(MPI_COMM_WORLD, &r);
-  return r;
-}
 
 template <class E>
 void expect_everywhere(const char* text) {

@@ -13,35 +13,17 @@
 #include "sim/excursion_set.hpp"
 #include "sim/initial_conditions.hpp"
 #include "sim/lightcone.hpp"
+#include "common.hpp"
+#include "../support/mpi_helpers.hpp"
 
 using namespace spinflip;
+using test_support::small_cone;
+using test_support::sum_all;
+using test_support::world_rank;
 
 namespace {
 
-int world_rank() {
-  int r = 0;
-  MPI_Comm_rank(MPI_COMM_WORLD, &r);
-  return r;
-}
-
-sim::ConeSettings small_cone() {
-  sim::ConeSettings s;
-  s.n_perp = 32;
-  s.n_los = 128;
-  s.cell_mpc = 3.0;
-  s.z_min = 7.0;
-  s.z_max = 8.0;
-  s.bubble_radius_max_mpc = 20.0;
-  s.n_radii = 12;
-  return s;
-}
-
-const rng::EntryKey key{.campaign_seed = 11, .point = 3, .realisation = 5};
-
-double sum_all(double v) {
-  MPI_Allreduce(MPI_IN_PLACE, &v, 1, MPI_DOUBLE, MPI_SUM, MPI_COMM_WORLD);
-  return v;
-}
+const rng::EntryKey& key = test_support::small_cone_key;
 
 }  // namespace
 

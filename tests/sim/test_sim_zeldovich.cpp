@@ -15,21 +15,14 @@
 #include "sim/initial_conditions.hpp"
 #include "sim/lightcone.hpp"
 #include "sim/zeldovich.hpp"
+#include "common.hpp"
+#include "../support/mpi_helpers.hpp"
 
 using namespace spinflip;
+using test_support::sum_all;
+using test_support::world_rank;
 
 namespace {
-
-int world_rank() {
-  int r = 0;
-  MPI_Comm_rank(MPI_COMM_WORLD, &r);
-  return r;
-}
-
-double sum_all(double v) {
-  MPI_Allreduce(MPI_IN_PLACE, &v, 1, MPI_DOUBLE, MPI_SUM, MPI_COMM_WORLD);
-  return v;
-}
 
 double local_sum(const core::Array3<float>& a) {
   double s = 0;
@@ -142,17 +135,10 @@ TEST(SimZeldovich, MassIsConservedUpToWhatLeavesTheLineOfSightEnds) {
 // rounding (deposits summed in another order), and the same group twice gives identical bytes.
 TEST(SimZeldovich, ConeOnOneRankAndOnTheGroup) {
   const cosmo::Cosmology c;
-  sim::ConeSettings s;
-  s.n_perp = 32;
-  s.n_los = 128;
-  s.cell_mpc = 3.0;
-  s.z_min = 7.0;
-  s.z_max = 8.0;
-  s.bubble_radius_max_mpc = 20.0;
-  s.n_radii = 12;
+  sim::ConeSettings s = test_support::small_cone();
   s.zeldovich_displacement = true;
   s.keep_density = true;
-  const rng::EntryKey key{.campaign_seed = 11, .point = 3, .realisation = 5};
+  const rng::EntryKey& key = test_support::small_cone_key;
   const auto group = sim::generate_cone(s, c, key, MPI_COMM_WORLD);
   const auto whole = sim::allgather_cone(group, MPI_COMM_WORLD);
   const auto again = sim::allgather_cone(sim::generate_cone(s, c, key, MPI_COMM_WORLD), MPI_COMM_WORLD);

@@ -20,6 +20,8 @@
 #include "core/errors.hpp"
 #include "core/log.hpp"
 #include "cosmo/cosmology.hpp"
+#include "fft/fft.hpp"
+#include "fft/planning.hpp"
 #include "instrument/instrument.hpp"
 #ifdef SPINFLIP_HAVE_INGEST
 #include "ingest/ingest.hpp"
@@ -204,6 +206,60 @@ struct Setup {
     }
   }
 };
+
+/// The FFT plans an entry will need, made once before the farm (docs/driver.md,
+/// "FFT plans"): the generator's slab transforms (together by the first group when
+/// groups share cones), then on world rank 0 alone every scenario's transforms and
+/// every kernel's on one unit of a test pattern. Collective on world.
+void prepare_plans(const Setup& setup, MPI_Comm world, int g) {
+  const auto& shape = setup.geometry.shape;
+  bool generated = true;
+#ifdef SPINFLIP_HAVE_INGEST
+  generated = !setup.manifest.has_value();
+#endif
+  if (generated && g > 1) {
+    const int wrank = rank_of(world);
+    MPI_Comm first = MPI_COMM_NULL;
+    SPINFLIP_CHECK_MPI(MPI_Comm_split(world, wrank < g ? 0 : MPI_UNDEFINED, wrank, &first));
+    if (first != MPI_COMM_NULL) {
+      { const fft::SlabField field(shape, first); }
+      fft::gather_wisdom(first);  // every rank's local sub-plans, onto world rank 0
+      MPI_Comm_free(&first);
+    }
+  }
+  core::run_on_root(world, [&] {
+    if (generated && g == 1) const fft::SlabField field(shape, MPI_COMM_SELF);
+    core::Array3<float> pattern(shape[0], shape[1], shape[2]);
+    for (std::size_t i = 0; i < pattern.size(); ++i)
+      pattern.data[i] = static_cast<float>((i * 2654435761u) % 1000) * 0.01f;
+    for (const auto& s : setup.scenarios) {
+      core::Array3<float> observed = pattern;
+      s.apply(observed, setup.geometry, rng::EntryKey{0, 0, 0});
+    }
+    for (const auto& k : setup.kernels) {
+      const auto& units = setup.units_of(*k);
+      if (units.empty()) continue;
+      if (k->unit_kind() == stats::UnitKind::slice)
+        (void)k->measure(instrument::extract_slice(pattern, units.front()).data.data(), setup.geometry_of(*k));
+      else
+        (void)k->measure(instrument::extract_chunk(pattern, units.front()).data.data(), setup.geometry_of(*k));
+    }
+  });
+}
+
+/// Share one wisdom with every rank (fft::share_wisdom) and say what planning cost.
+fft::SharedWisdom share_plans(const Campaign& c, const Setup& setup, const std::optional<fs::path>& own, MPI_Comm world,
+                              int g) {
+  fft::SharedWisdom w = fft::share_wisdom(world, own, fft::wisdom_cache_from(c.config()),
+                                          [&] { prepare_plans(setup, world, g); });
+  std::size_t measured = 0;
+  for (const auto& r : w.made)
+    if (r.how == "measured" || r.how == "patient") ++measured;
+  if (rank_of(world) == 0)
+    log::info("fft: {} plans prepared in {:.1f} s ({} measured), wisdom {} from {}", w.made.size(), w.seconds,
+              measured, w.sha256.substr(0, 12), w.source);
+  return w;
+}
 
 /// The shared counters on world rank 0: the next todo index, entries done and
 /// failed by this run, and a stop flag any group may raise.
@@ -554,6 +610,15 @@ int ranks_per_node(MPI_Comm world) {
 
 catalogue::Layout layout_of(const Campaign& campaign) { return Setup(campaign).layout; }
 
+fft::SharedWisdom prepare_fft_plans(const Campaign& c, const std::optional<fs::path>& own, MPI_Comm world) {
+  fft::set_planning(fft::planning_from(c.config()));
+  fft::set_wisdom_only(true);
+  const Setup setup(c);
+  // A group larger than this launch plans on the ranks there are (run under g ranks for the slab plans).
+  const int g = std::min(static_cast<int>(c.config().integer("campaign.group_size")), size_of(world));
+  return share_plans(c, setup, own, world, g);
+}
+
 RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
   const double t_start = MPI_Wtime();
   const int wrank = rank_of(world), wsize = size_of(world);
@@ -562,6 +627,9 @@ RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
   check_group_size(g, wsize, options.group_size ? std::string("--group-size") : cfg.location("campaign.group_size") +
                                                                                    ": campaign.group_size");
   const fs::path output = options.output.empty() ? c.output_path() : options.output;
+  // Until the run's wisdom is shared, nothing may measure a plan on its own.
+  fft::set_planning(fft::planning_from(cfg));
+  fft::set_wisdom_only(true);
 
   // Everything `spinflip plan` refuses, run refuses too (memory, geometry, kernels).
   const int per_node = ranks_per_node(world);
@@ -579,8 +647,13 @@ RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
   });
 
   log::debug("run: plan checks passed ({:.2f} s)", MPI_Wtime() - t_start);
-  const Setup setup(c);
+  Setup setup(c);
   log::debug("run: scenarios and kernels set up ({:.2f} s)", MPI_Wtime() - t_start);
+  // One wisdom for every rank before any plan of an entry (DESIGN.md §3, §11): the
+  // catalogue keeps it beside itself, so a resumed run uses the same plans.
+  const fft::SharedWisdom wisdom = share_plans(c, setup, fs::path(output.string() + ".fftw-wisdom"), world, g);
+  setup.layout.attributes.push_back({"fft_wisdom_sha256", wisdom.sha256});
+  log::debug("run: FFT plans ready ({:.2f} s)", MPI_Wtime() - t_start);
   int exists = 0;
   if (wrank == 0) exists = fs::exists(output) ? 1 : 0;
   SPINFLIP_CHECK_MPI(MPI_Bcast(&exists, 1, MPI_INT, 0, world));

@@ -18,6 +18,7 @@
 
 #include "campaign/campaign.hpp"
 #include "catalogue/catalogue.hpp"
+#include "fft/planning.hpp"
 
 namespace spinflip::campaign {
 
@@ -51,6 +52,12 @@ struct RunResult {
 /// ConfigError for a bad group size, a different campaign in the catalogue, or
 /// a plan that cannot run (memory, geometry); entries that fail are recorded.
 RunResult run(const Campaign& campaign, const RunOptions& options, MPI_Comm world);
+
+/// Make (or load) the FFT plans the campaign's entries need and share one wisdom
+/// with every rank of world, as `run` does before its first entry (docs/driver.md,
+/// "FFT plans"); `own`: a catalogue's wisdom file. Collective on world.
+fft::SharedWisdom prepare_fft_plans(const Campaign& campaign, const std::optional<std::filesystem::path>& own,
+                                    MPI_Comm world);
 
 /// The catalogue layout of a campaign: design, entries, history z, and per
 /// scenario and kernel the units and axes (units at the fiducial cosmology).

@@ -1,5 +1,7 @@
 #include "campaign/schema.hpp"
 
+#include "fft/planning.hpp"
+
 #ifdef SPINFLIP_HAVE_COSMO
 #include "cosmo/cosmology.hpp"
 #endif
@@ -84,6 +86,7 @@ const core::Schema& campaign_schema() {
   static const core::Schema schema = [] {
     core::Schema s;
     declare_keys(s);
+    fft::declare_keys(s);
 #ifdef SPINFLIP_HAVE_COSMO
     cosmo::declare_keys(s);
 #endif

@@ -13,6 +13,8 @@
 #include "campaign/campaign.hpp"
 #include "catalogue/hdf5.hpp"
 #include "cli/verbs.hpp"
+#include "fft/fft.hpp"
+#include "fft/planning.hpp"
 #include "core/errors.hpp"
 #include "core/log.hpp"
 #include "cosmo/cosmology.hpp"
@@ -75,6 +77,14 @@ int run_cone(const ConeArgs& a) {
   settings.keep_x_hi = wants("x_hi");
   settings.keep_z_ion = wants("z_ion");
   const cosmo::Cosmology cosmology(cosmo::parameters_from(cfg));
+  // The generator's plans from one wisdom on every rank, as `spinflip run` makes them
+  // (seeded from the user's wisdom cache, so a cone matches its catalogue entry).
+  fft::set_planning(fft::planning_from(cfg));
+  fft::set_wisdom_only(true);
+  const fft::SharedWisdom wisdom = fft::share_wisdom(MPI_COMM_WORLD, std::nullopt, fft::wisdom_cache_from(cfg), [&] {
+    { const fft::SlabField field({settings.n_perp, settings.n_perp, settings.n_los}, MPI_COMM_WORLD); }
+    if (world_size() > 1) fft::gather_wisdom(MPI_COMM_WORLD);
+  });
   sim::LightCone cone = sim::generate_cone(settings, cosmology, key, MPI_COMM_WORLD);
   core::Array3<float> tb = sim::allgather_cone(cone, MPI_COMM_WORLD);
   std::vector<std::pair<std::string, core::Array3<float>>> extra;
@@ -82,6 +92,7 @@ int run_cone(const ConeArgs& a) {
   if (cone.x_hi) extra.emplace_back("x_hi", sim::allgather_field(cone, *cone.x_hi, MPI_COMM_WORLD));
   if (cone.z_ion) extra.emplace_back("z_ion", sim::allgather_field(cone, *cone.z_ion, MPI_COMM_WORLD));
   if (world_rank() != 0) return 0;
+  fft::set_wisdom_only(false);  // rank 0 alone applies the scenarios: it may measure their plans
 
   instrument::ConeGeometry geo;
   geo.shape = tb.shape;
@@ -125,6 +136,7 @@ int run_cone(const ConeArgs& a) {
   }
   h5::write_attribute(file, "campaign_sha256", c.sha256());
   h5::write_attribute(file, "campaign_text", c.config().text());
+  h5::write_attribute(file, "fft_wisdom_sha256", wisdom.sha256);
   h5::write_attribute(file, "point", static_cast<std::int64_t>(a.point));
   h5::write_attribute(file, "realisation", static_cast<std::int64_t>(a.realisation));
   h5::write_attribute(file, "seed", std::vector<std::int64_t>{static_cast<std::int64_t>(key.campaign_seed),

@@ -17,6 +17,7 @@
 #include "core/version.hpp"
 #include "stats/npy.hpp"
 #include "stats/stats.hpp"
+#include "fft/planning.hpp"
 
 namespace spinflip::cli {
 namespace {
@@ -129,6 +130,7 @@ int run_measure(const std::string& input, const std::string& stats_file, const s
   H5Eset_auto2(H5E_DEFAULT, nullptr, nullptr);  // errors are reported as spinflip errors instead
   core::Schema schema;
   stats::declare_keys(schema);
+  fft::declare_keys(schema);  // a stats file may say how FFT plans are made ([fft])
   if (!std::filesystem::exists(stats_file)) throw IoError(stats_file + ": stats file does not exist");
   const auto config = core::Config::from_file(stats_file, schema);
   const auto kernels = stats::kernels_from(config);
@@ -155,6 +157,23 @@ int run_measure(const std::string& input, const std::string& stats_file, const s
     k->check(k->unit_kind() == stats::UnitKind::chunk || !cube ? whole : slice);
   }
 
+  // One kernel's coefficients of unit u (a slice of a cube, or the whole array).
+  const auto unit_values = [&](const stats::Kernel& k, std::size_t u) {
+    const bool per_slice = cube && k.unit_kind() == stats::UnitKind::slice;
+    const stats::Geometry& g = per_slice ? slice : whole;
+    if (!per_slice) return k.measure(field.data.data(), g);
+    const std::size_t n0 = field.shape[0], n1 = field.shape[1], n2 = field.shape[2];
+    std::vector<float> s(n0 * n1);
+    for (std::size_t i = 0; i < n0 * n1; ++i) s[i] = field.data[i * n2 + u];
+    return k.measure(s.data(), g);
+  };
+  // Measured plans, made on the first unit of each kernel and kept in the user's
+  // wisdom cache for the next call (docs/driver.md, "FFT plans").
+  fft::set_planning(fft::planning_from(config));
+  const fft::SharedWisdom wisdom = fft::share_wisdom(MPI_COMM_SELF, std::nullopt, fft::wisdom_cache_from(config), [&] {
+    for (const auto& k : kernels) (void)unit_values(*k, 0);
+  });
+
   H5Id file(H5Fcreate(output.c_str(), H5F_ACC_TRUNC, H5P_DEFAULT, H5P_DEFAULT), H5Fclose,
             output + ": cannot create the output file (check the directory exists and is writable)");
   write_attribute(file, "tool_version", std::string(tool_version));
@@ -165,6 +184,7 @@ int run_measure(const std::string& input, const std::string& stats_file, const s
   write_attribute(file, "cell_mpc", cell_mpc);
   write_attribute(file, "stats_file", stats_file);
   write_attribute(file, "stats_text", config.text());
+  write_attribute(file, "fft_wisdom_sha256", wisdom.sha256);
 
   for (const auto& k : kernels) {
     const bool per_slice = cube && k->unit_kind() == stats::UnitKind::slice;
@@ -172,15 +192,7 @@ int run_measure(const std::string& input, const std::string& stats_file, const s
     const std::size_t n_units = per_slice ? field.shape[2] : 1, n_coeff = k->n_coeff(g);
     std::vector<double> values(n_units * n_coeff);
     auto run_unit = [&](std::size_t u) {
-      std::vector<double> c;
-      if (!per_slice) {
-        c = k->measure(field.data.data(), g);
-      } else {
-        const std::size_t n0 = field.shape[0], n1 = field.shape[1], n2 = field.shape[2];
-        std::vector<float> s(n0 * n1);
-        for (std::size_t i = 0; i < n0 * n1; ++i) s[i] = field.data[i * n2 + u];
-        c = k->measure(s.data(), g);
-      }
+      const std::vector<double> c = unit_values(*k, u);
       if (c.size() != n_coeff) throw InternalError("stats." + k->name() + ": coefficient count mismatch");
       std::copy(c.begin(), c.end(), values.begin() + static_cast<std::ptrdiff_t>(u * n_coeff));
     };

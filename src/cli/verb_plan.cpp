@@ -3,6 +3,8 @@
 #include <mpi.h>
 
 #include <chrono>
+#include <cstdio>
+#include <optional>
 #include <cmath>
 #include <filesystem>
 #include <fstream>
@@ -15,6 +17,7 @@
 #include "cli/verbs.hpp"
 #include "core/errors.hpp"
 #include "core/log.hpp"
+#include "fft/planning.hpp"
 #ifdef SPINFLIP_HAVE_DRIVER
 #include "campaign/driver.hpp"
 #include "catalogue/hdf5.hpp"
@@ -30,6 +33,7 @@ struct PlanArgs {
   int group_size = 0;
   bool probe = false;
   bool scan = false;
+  bool fft_plans = false;
 };
 
 [[maybe_unused]] std::string fmt(double v, int precision = 3) {
@@ -107,6 +111,9 @@ RegisterVerb plan_verb(
                      "ranks that will share one light cone, as run's --group-size (default: campaign.group_size)")
           ->check(CLI::PositiveNumber);
 #ifdef SPINFLIP_HAVE_DRIVER
+      sub.add_flag("--fft-plans", a->fft_plans,
+                   "make the FFT plans the campaign needs and keep their wisdom in the user cache, printing the "
+                   "planning time of each (run under as many ranks as a group to include its distributed plans)");
       sub.add_flag("--probe", a->probe,
                    "time one entry through the driver (on rank 0, scratch catalogue) and estimate the campaign's cost");
 #endif
@@ -122,6 +129,11 @@ RegisterVerb plan_verb(
         opt.group_size = static_cast<std::size_t>(a->group_size);
         opt.ranks_per_node = a->ranks_per_node > 0 ? a->ranks_per_node : ranks_on_this_node();
         const auto report = campaign::plan(c, opt);
+#ifdef SPINFLIP_HAVE_DRIVER
+        std::optional<fft::SharedWisdom> plans;  // collective: every rank takes part
+        if (a->fft_plans && report.problems.empty())
+          plans = campaign::prepare_fft_plans(c, std::nullopt, MPI_COMM_WORLD);
+#endif
         if (world_rank() != 0) return report.problems.empty() ? 0 : 2;
         if (!a->points_csv.empty()) {
           std::ofstream out(a->points_csv);
@@ -139,6 +151,19 @@ RegisterVerb plan_verb(
           return 2;
         }
 #ifdef SPINFLIP_HAVE_DRIVER
+        if (plans) {
+          const auto cache = fft::wisdom_cache_from(c.config());
+          const auto rigor = fft::planning();
+          std::cout << "fft plans (" << c.config().string("fft.planning") << ", at most " << fmt(rigor.time_limit_s)
+                    << " s each): " << plans->made.size() << " plans in " << fmt(plans->seconds) << " s; wisdom sha256 "
+                    << plans->sha256 << (cache ? ", kept in " + cache->string() : std::string(", not kept (wisdom_cache = \"none\")"))
+                    << "\n";
+          for (const auto& r : plans->made) {
+            char line[64];
+            std::snprintf(line, sizeof line, "  %9.3f s  %-24s ", r.seconds, r.how.c_str());
+            std::cout << line << r.problem << "\n";
+          }
+        }
         if (a->probe) {
           const auto p = probe_one_entry(c, a->memory_limit_gb);
           const double n = static_cast<double>(c.entries().size());

@@ -21,6 +21,7 @@
 #include <tuple>
 
 #include "core/errors.hpp"
+#include "fft/fft.hpp"
 
 namespace spinflip::instrument {
 namespace {
@@ -33,26 +34,6 @@ constexpr std::size_t min_wedge_chunk_cells = 8;
 
 using core::KeySpec;
 using core::ValueType;
-
-// Move-only owner of an FFTW plan.
-class Plan {
- public:
-  explicit Plan(fftwf_plan p) : p_(p) {
-    if (!p_) throw InternalError("FFTW could not make a plan for the instrument transform");
-  }
-  Plan(Plan&& o) noexcept : p_(std::exchange(o.p_, nullptr)) {}
-  Plan& operator=(Plan&&) = delete;
-  Plan(const Plan&) = delete;
-  Plan& operator=(const Plan&) = delete;
-  ~Plan() {
-    if (p_) fftwf_destroy_plan(p_);
-  }
-  void run() const { fftwf_execute(p_); }
-  fftwf_plan get() const { return p_; }
-
- private:
-  fftwf_plan p_;
-};
 
 struct FftwFree { void operator()(void* p) const { fftwf_free(p); } };
 
@@ -294,9 +275,9 @@ core::Array2<float> Scenario::uv_time_s(std::size_t k) const {
 double Scenario::noise_sigma_mK(std::size_t k, double t) const { return sigma_unit_[k] / std::sqrt(t); }
 
 namespace {
-// Plans for one cone shape, made once (FFTW_ESTIMATE, so results do not depend on
-// timing) and run with the new-array execute functions on fresh buffers of the
-// same alignment. The work buffer is LOS-major, [k][i][j] with rows padded to
+// Plans for one cone shape come from the project's one planner (src/fft: measured,
+// shared wisdom, so every rank runs the same plan) and are run on fresh buffers of
+// the same alignment. The work buffer is LOS-major, [k][i][j] with rows padded to
 // 2(N/2+1) floats, so the transverse transforms are contiguous batched 2D
 // transforms. The wedge's LOS transforms run one mode's chunk at a time on a small
 // contiguous scratch (rows of los_row(len) complex, so every row has the alignment
@@ -307,40 +288,28 @@ constexpr std::size_t los_block = 64;  // modes gathered per pass over a chunk's
 std::size_t los_row(std::size_t len) { return (len + 3) / 4 * 4; }  // 32-byte rows
 
 struct ApplyPlans {
-  Plan fwd, inv;
-  std::map<std::size_t, std::pair<Plan, Plan>> los;  // chunk length -> (forward, backward)
+  fft::Plan fwd, inv;
+  std::map<std::size_t, std::pair<fft::Plan, fft::Plan>> los;  // chunk length -> (forward, backward)
 };
 
-std::mutex& plan_mutex() {
-  static std::mutex m;
-  return m;
-}
-
+// Asked for on every apply (a cache lookup): the planner may have been given a new
+// wisdom since, and handles keep each plan alive while it runs.
 // scratch: an fftwf_alloc'd buffer of at least los_row(chunk) complex (the LOS plans' alignment).
-const ApplyPlans& apply_plans(std::size_t N, std::size_t L, std::size_t chunk, float* buf, fftwf_complex* scratch) {
-  using Key = std::array<std::size_t, 4>;
-  static std::map<Key, std::unique_ptr<ApplyPlans>> cache;
+ApplyPlans apply_plans(std::size_t N, std::size_t L, std::size_t chunk, float* buf, fftwf_complex* scratch) {
   const std::size_t H = N / 2 + 1;
-  const Key key{N, L, chunk, static_cast<std::size_t>(fftwf_alignment_of(buf))};
-  std::lock_guard<std::mutex> lock(plan_mutex());
-  if (auto it = cache.find(key); it != cache.end()) return *it->second;
-  const int n[2] = {static_cast<int>(N), static_cast<int>(N)};
-  const int l = static_cast<int>(L), plane_r = static_cast<int>(2 * N * H), plane_c = static_cast<int>(N * H);
-  const int embed_r[2] = {n[0], static_cast<int>(2 * H)}, embed_c[2] = {n[0], static_cast<int>(H)};
-  auto* c = reinterpret_cast<fftwf_complex*>(buf);
-  auto p = std::make_unique<ApplyPlans>(ApplyPlans{
-      Plan(fftwf_plan_many_dft_r2c(2, n, l, buf, embed_r, 1, plane_r, c, embed_c, 1, plane_c, FFTW_ESTIMATE)),
-      Plan(fftwf_plan_many_dft_c2r(2, n, l, c, embed_c, 1, plane_c, buf, embed_r, 1, plane_r, FFTW_ESTIMATE)),
-      {}});
+  auto* c = reinterpret_cast<fft::cfloat*>(buf);
+  ApplyPlans p{fft::plan_r2c_2d_many(N, N, L, buf, 2 * H, 2 * N * H, c, H, N * H),
+               fft::plan_c2r_2d_many(N, N, L, c, H, N * H, buf, 2 * H, 2 * N * H), {}};
+  auto* t = reinterpret_cast<fft::cfloat*>(scratch);
   if (chunk > 0)
     for (std::size_t a = 0; a < L; a += chunk) {
       const std::size_t len = std::min(chunk, L - a);
-      if (p->los.count(len)) continue;
-      const int ln = static_cast<int>(len);
-      p->los.emplace(len, std::pair<Plan, Plan>(Plan(fftwf_plan_dft_1d(ln, scratch, scratch, FFTW_FORWARD, FFTW_ESTIMATE)),
-                                                Plan(fftwf_plan_dft_1d(ln, scratch, scratch, FFTW_BACKWARD, FFTW_ESTIMATE))));
+      if (p.los.count(len)) continue;
+      p.los.emplace(len, std::pair<fft::Plan, fft::Plan>(
+                             fft::plan_c2c_1d_many(len, 1, t, 1, 0, t, 1, 0, fft::Direction::forward),
+                             fft::plan_c2c_1d_many(len, 1, t, 1, 0, t, 1, 0, fft::Direction::inverse)));
     }
-  return *cache.emplace(key, std::move(p)).first->second;
+  return p;
 }
 
 constexpr std::size_t tile = 16;
@@ -450,10 +419,10 @@ void Scenario::apply(core::Array3<float>& cone, const ConeGeometry& g, const rng
   }
   float* buf = buffer.get();
   auto* S = reinterpret_cast<std::complex<float>*>(buf);
-  const ApplyPlans& plans = apply_plans(N, L, C, buf, scratch.get());
+  const ApplyPlans plans = apply_plans(N, L, C, buf, scratch.get());
 
   to_los_major(cone.data.data(), buf, N, L, 2 * H);
-  fftwf_execute_dft_r2c(plans.fwd.get(), buf, reinterpret_cast<fftwf_complex*>(buf));
+  plans.fwd.r2c(buf, reinterpret_cast<fft::cfloat*>(buf));
 
   // uv mask and noise on the spectrum, with the normalisation of the inverse
   // transforms to come (1/N² transverse, and 1/len of a LOS chunk where one is made).
@@ -563,12 +532,12 @@ void Scenario::apply(core::Array3<float>& cone, const ConeGeometry& g, const rng
         }
         for (std::size_t b = 0; b < many; ++b) {
           if (row[b] == los_block) continue;
-          fftwf_complex* r = T + row[b] * ld;
-          fftwf_execute_dft(fwd.get(), r, r);
+          auto* r = reinterpret_cast<fft::cfloat*>(T + row[b] * ld);
+          fwd.c2c(r, r);
           std::complex<float>* rc = Tc + row[b] * ld;
           std::fill(rc, rc + n_cut[b], std::complex<float>(0));
           std::fill(rc + (len - n_cut[b] + 1), rc + len, std::complex<float>(0));
-          fftwf_execute_dft(bwd.get(), r, r);
+          bwd.c2c(r, r);
         }
         if (rows > 0)
           for (std::size_t k = a; k < a + len; ++k) {
@@ -580,7 +549,7 @@ void Scenario::apply(core::Array3<float>& cone, const ConeGeometry& g, const rng
     }
   }
 
-  fftwf_execute_dft_c2r(plans.inv.get(), reinterpret_cast<fftwf_complex*>(buf), buf);
+  plans.inv.c2r(reinterpret_cast<fft::cfloat*>(buf), buf);
   from_los_major(buf, cone.data.data(), N, L, 2 * H);
 }
 

@@ -23,6 +23,7 @@
 #include "core/errors.hpp"
 #include "cosmo/cosmology.hpp"
 #include "fft/fft.hpp"
+#include "fft/planning.hpp"
 #include "sim/excursion_set.hpp"
 #include "sim/initial_conditions.hpp"
 #include "sim/zeldovich.hpp"
@@ -228,6 +229,7 @@ float threshold_for(const BarrierLookup& b, float z) {
 struct WorkStorage {
   std::array<std::size_t, 3> shape{0, 0, 0};
   double cell_mpc = 0;
+  std::size_t plan_epoch = 0;         // the planner's epoch its fields were planned in
   std::deque<fft::SlabField> fields;  // [0]: the z = 0 Fourier density; [1..]: work fields (stable references)
   std::optional<ModeBins> bins;
   std::vector<std::uint8_t> ionized;  // 1: ionized at the cell's own redshift by some radius
@@ -241,9 +243,11 @@ WorkStorage& kept_storage(const std::array<std::size_t, 3>& shape, double cell_m
     local = std::make_unique<WorkStorage>();
   } else {
     thread_local std::unique_ptr<WorkStorage> kept;
-    if (!kept || kept->shape != shape || kept->cell_mpc != cell_mpc) {
+    // A new wisdom (fft::use_wisdom) may change the plans: the kept fields are re-planned.
+    if (!kept || kept->shape != shape || kept->cell_mpc != cell_mpc || kept->plan_epoch != fft::plan_epoch()) {
       kept.reset();
       kept = std::make_unique<WorkStorage>();
+      kept->plan_epoch = fft::plan_epoch();
     }
     local.reset();
     return *kept;

@@ -1,5 +1,7 @@
 // The fft wrapper's cost over a bare FFTW execute of the same plan: r2c 3D and
 // c2c 2D, float, measured in the same run and printed as ratios (target ≤ 1.05).
+// Both measured (FFTW_MEASURE): the bare plan is made after the wrapper's, from the
+// same wisdom, so both run the same algorithm.
 //   bench_fft [--n=128] [benchmark flags]
 #include <benchmark/benchmark.h>
 #include <fftw3.h>
@@ -10,6 +12,7 @@
 #include <string>
 
 #include "fft/fft.hpp"
+#include "fft/planning.hpp"
 #include "bench_support.hpp"
 
 using namespace spinflip;
@@ -42,7 +45,7 @@ void bare_r2c_3d(benchmark::State& state) {
   fft::Buffer<fft::cfloat> out(n * n * (n / 2 + 1));
   for (std::size_t i = 0; i < in.size(); ++i) in[i] = static_cast<float>(i % 17);
   const int N = static_cast<int>(n);
-  fftwf_plan p = fftwf_plan_dft_r2c_3d(N, N, N, in.data(), reinterpret_cast<fftwf_complex*>(out.data()), FFTW_ESTIMATE);
+  fftwf_plan p = fftwf_plan_dft_r2c_3d(N, N, N, in.data(), reinterpret_cast<fftwf_complex*>(out.data()), FFTW_MEASURE);
   for (auto _ : state) {
     fftwf_execute(p);
     benchmark::DoNotOptimize(out.data());
@@ -69,7 +72,7 @@ void bare_c2c_2d(benchmark::State& state) {
   for (std::size_t i = 0; i < in.size(); ++i) in[i] = static_cast<float>(i % 13);
   const int M = static_cast<int>(m);
   fftwf_plan p = fftwf_plan_dft_2d(M, M, reinterpret_cast<fftwf_complex*>(in.data()),
-                                   reinterpret_cast<fftwf_complex*>(out.data()), FFTW_FORWARD, FFTW_ESTIMATE);
+                                   reinterpret_cast<fftwf_complex*>(out.data()), FFTW_FORWARD, FFTW_MEASURE);
   for (auto _ : state) {
     fftwf_execute(p);
     benchmark::DoNotOptimize(out.data());
@@ -83,6 +86,7 @@ void bare_c2c_2d(benchmark::State& state) {
 int main(int argc, char** argv) {
   for (int i = 1; i < argc; ++i)
     if (std::strncmp(argv[i], "--n=", 4) == 0) n = std::stoul(argv[i] + 4);
+  fft::set_planning({fft::Rigor::measure, 600});
   // Interleave wrapper and bare runs so that machine noise hits both alike.
   for (int rep = 0; rep < 3; ++rep) {
     benchmark::RegisterBenchmark(("wrapper_r2c_3d/" + std::to_string(rep)).c_str(), wrapper_r2c_3d)->MinTime(0.3);

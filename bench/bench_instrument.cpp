@@ -1,11 +1,15 @@
 // Applying a full scenario (uv mask + thermal noise + wedge) to a cone, against
 // the FFT work it implies, measured in the same run: one 3D r2c plus one 3D c2r
-// of the cone (the same transverse 2D and LOS 1D transforms apply() does).
-// uv gridding happens once in scenarios_from and is timed separately.
+// of the cone (the same transverse 2D and LOS 1D transforms apply() does), with the
+// fastest plans: measured (FFTW_MEASURE), out of place or in place on padded rows,
+// whichever runs faster (both printed). The scenarios are timed with measured plans
+// and, as before issue 18, with FFTW_ESTIMATE ones. uv gridding happens once in
+// scenarios_from and is timed separately.
 //   bench_instrument [--n_perp=128] [--n_los=1024]   (target: apply <= 2 x FFTs)
 #include <benchmark/benchmark.h>
 #include <mpi.h>
 
+#include <algorithm>
 #include <chrono>
 #include <cstdio>
 #include <cstring>
@@ -15,6 +19,7 @@
 #include "core/config.hpp"
 #include "cosmo/cosmology.hpp"
 #include "fft/fft.hpp"
+#include "fft/planning.hpp"
 #include "instrument/instrument.hpp"
 #include "bench_support.hpp"
 
@@ -68,7 +73,20 @@ struct Fixture {
 };
 Fixture* fixture = nullptr;
 
-void apply_scenario(benchmark::State& state, const char* name) {
+std::string measured_wisdom;
+bool measured_now = false;
+
+/// Plans for what follows: measured (kept as wisdom between switches), or FFTW_ESTIMATE.
+void use_plans(bool measured) {
+  if (measured == measured_now) return;
+  if (measured_now) measured_wisdom = fft::wisdom_text();
+  measured_now = measured;
+  fft::set_planning(measured ? fft::Planning{fft::Rigor::measure, 600} : fft::Planning{});
+  fft::use_wisdom(measured ? measured_wisdom : std::string(), "bench");
+}
+
+void apply_scenario(benchmark::State& state, const char* name, bool measured) {
+  use_plans(measured);
   auto cone = fixture->cone;
   std::size_t which = 0;
   while (fixture->scenarios.at(which).name() != name) ++which;
@@ -82,16 +100,19 @@ void apply_scenario(benchmark::State& state, const char* name) {
   }
 }
 
-void its_transforms(benchmark::State& state) {
+void its_transforms(benchmark::State& state, bool in_place) {
+  use_plans(true);
   const std::array<std::size_t, 3> shape{n_perp, n_perp, n_los};
-  fft::Buffer<float> real(n_perp * n_perp * n_los);
-  fft::Buffer<fft::cfloat> spec(n_perp * n_perp * (n_los / 2 + 1));
-  std::copy(fixture->cone.data.begin(), fixture->cone.data.end(), real.data());
-  fft::r2c_3d(shape, real.data(), spec.data());  // plan outside the timing
-  fft::c2r_3d(shape, spec.data(), real.data());
+  const std::size_t h = n_perp * n_perp * (n_los / 2 + 1);
+  fft::Buffer<float> real(in_place ? 2 * h : n_perp * n_perp * n_los);
+  fft::Buffer<fft::cfloat> spec(in_place ? 0 : h);
+  auto* c = in_place ? reinterpret_cast<fft::cfloat*>(real.data()) : spec.data();
+  std::fill_n(real.data(), real.size(), 0.25f);
+  fft::r2c_3d(shape, real.data(), c);  // plan outside the timing
+  fft::c2r_3d(shape, c, real.data());
   for (auto _ : state) {
-    fft::r2c_3d(shape, real.data(), spec.data());
-    fft::c2r_3d(shape, spec.data(), real.data());
+    fft::r2c_3d(shape, real.data(), c);
+    fft::c2r_3d(shape, c, real.data());
     benchmark::DoNotOptimize(real.data());
   }
 }
@@ -107,20 +128,32 @@ int main(int argc, char** argv) {
   }
   Fixture f;
   fixture = &f;
-  benchmark::RegisterBenchmark("apply_full_scenario", apply_scenario, "full")->Iterations(3)->Unit(benchmark::kMillisecond);
-  benchmark::RegisterBenchmark("apply_resolution_only", apply_scenario, "resolution")->Iterations(3)->Unit(benchmark::kMillisecond);
-  benchmark::RegisterBenchmark("apply_resolution_noise", apply_scenario, "noise")->Iterations(3)->Unit(benchmark::kMillisecond);
-  benchmark::RegisterBenchmark("its_transforms", its_transforms)->Iterations(3)->Unit(benchmark::kMillisecond);
+  using benchmark::RegisterBenchmark;
+  const auto ms = benchmark::kMillisecond;
+  RegisterBenchmark("apply_full_scenario", apply_scenario, "full", true)->Iterations(3)->Unit(ms);
+  RegisterBenchmark("apply_resolution_only", apply_scenario, "resolution", true)->Iterations(3)->Unit(ms);
+  RegisterBenchmark("apply_resolution_noise", apply_scenario, "noise", true)->Iterations(3)->Unit(ms);
+  RegisterBenchmark("its_transforms_out_of_place", its_transforms, false)->Iterations(3)->Unit(ms);
+  RegisterBenchmark("its_transforms_in_place", its_transforms, true)->Iterations(3)->Unit(ms);
+  RegisterBenchmark("apply_full_scenario_estimate", apply_scenario, "full", false)->Iterations(3)->Unit(ms);
   benchmark::Initialize(&argc, argv);
   bench::SecondsPerIteration reporter(bench::SecondsPerIteration::Clock::cpu);
   benchmark::RunSpecifiedBenchmarks(&reporter);
   for (const auto& [name, t] : reporter.seconds) seconds[name] = t;
-  const double a = seconds["apply_full_scenario/iterations:3"], t = seconds["its_transforms/iterations:3"];
+  const double a = seconds["apply_full_scenario/iterations:3"];
+  const double t_out = seconds["its_transforms_out_of_place/iterations:3"];
+  const double t_in = seconds["its_transforms_in_place/iterations:3"];
+  const double t = std::min(t_out, t_in);
+  const char* layout = t_out <= t_in ? "out of place" : "in place";
+  std::printf("its transforms (r2c + c2r 3D, measured): out of place %.3f s, in place %.3f s\n", t_out, t_in);
   std::printf("resolution only / transforms = %.2f, resolution + noise / transforms = %.2f\n",
               seconds["apply_resolution_only/iterations:3"] / t, seconds["apply_resolution_noise/iterations:3"] / t);
-  std::printf("cone %zux%zux%zu (CPU time): full apply %.3f s, its transforms %.3f s: ratio %.2f (target <= 2); "
-              "uv gridding once per campaign: %.2f x one apply\n",
-              n_perp, n_perp, n_los, a, t, a / t, seconds["uv_gridding_once"] / a);
+  std::printf("cone %zux%zux%zu (CPU time): full apply %.3f s, its fastest transforms (%s, measured) %.3f s: "
+              "ratio %.2f (target <= 2); uv gridding once per campaign: %.2f x one apply\n",
+              n_perp, n_perp, n_los, a, layout, t, a / t, seconds["uv_gridding_once"] / a);
+  const double e = seconds["apply_full_scenario_estimate/iterations:3"];
+  std::printf("before (FFTW_ESTIMATE plans): full apply %.3f s, ratio to the fastest transforms %.2f; "
+              "measured plans speed it up %.2f x\n", e, e / t, e / a);
   benchmark::Shutdown();
   fixture = nullptr;
   MPI_Finalize();

@@ -1,25 +1,46 @@
-// Statistic kernels against the transforms they are built on, measured in the
-// same run (ratios printed at the end; never a pass/fail on time):
-//  - scattering on a 256 × 256 slice, J = 6, L = 8, S0+S1+S2, cropped and at
-//    full resolution, over one 256 × 256 complex float FFT planned as the project
-//    plans its transforms (fft::c2c_2d, FFTW_ESTIMATE, contiguous; issue target ≤ 160),
-//    and, for information, over the same FFT on padded rows;
-//  - spherical power of a 128 × 128 × 1024 chunk over its forward r2c FFT (≤ 1.5).
-//   bench_stats [--benchmark_filter=...] [--benchmark_min_time=...]
+// Statistic kernels against the fastest plan of the transforms they are built on,
+// and against the tests' float64 numpy implementation of the same definition,
+// measured in the same run (ratios printed at the end; never a pass/fail on time):
+//  - scattering on a 256 × 256 slice, J = 6, L = 8, S0+S1+S2, cropped and at full
+//    resolution, over one 256 × 256 complex float FFT with the fastest plan: measured
+//    (FFTW_MEASURE), on contiguous or on padded rows (264), whichever runs faster
+//    (issue 18 target ≤ 200), and over numpy's time for tests/stats/check_scattering.py's
+//    reference() (target: spinflip ≥ 80 × faster);
+//  - spherical power of a 128 × 128 × 1024 chunk over its fastest r2c FFT (measured,
+//    out of place or in place on padded rows, whichever runs faster; target ≤ 1.5), and
+//    numpy's reference_spherical() of tests/stats/check_power.py;
+//  - the same kernels and FFTs with FFTW_ESTIMATE plans (what the project used before).
+// Ratios use CPU time (the machine is shared; wall time there measures the load).
+//   bench_stats [--numpy_reps=2] [--no_numpy] [benchmark flags]
 #include <benchmark/benchmark.h>
 
 #include <cstdio>
+#include <cstring>
 #include <map>
 #include <random>
 #include <string>
 
 #include "core/config.hpp"
 #include "fft/fft.hpp"
+#include "fft/planning.hpp"
 #include "stats/stats.hpp"
+#include "bench_support.hpp"
 
 using namespace spinflip;
 
 namespace {
+
+std::string measured_wisdom;
+bool measured_now = false;
+
+/// Plans for what follows: measured (kept as wisdom between switches), or FFTW_ESTIMATE.
+void use_plans(bool measured) {
+  if (measured == measured_now) return;
+  if (measured_now) measured_wisdom = fft::wisdom_text();
+  measured_now = measured;
+  fft::set_planning(measured ? fft::Planning{fft::Rigor::measure, 600} : fft::Planning{});
+  fft::use_wisdom(measured ? measured_wisdom : std::string(), "bench");
+}
 
 std::unique_ptr<stats::Kernel> kernel(const std::string& toml) {
   static core::Schema schema = [] {
@@ -39,99 +60,145 @@ std::vector<float> noise(std::size_t n) {
   return v;
 }
 
-void fft_c2c_256(benchmark::State& state) {
-  fft::Buffer<fft::cfloat> a(256 * 256), b(256 * 256);
-  for (std::size_t i = 0; i < a.size(); ++i) a[i] = fft::cfloat(static_cast<float>(i % 7), 0.0f);
-  fft::c2c_2d(256, 256, a.data(), b.data(), fft::Direction::inverse);  // plan outside the timing
-  for (auto _ : state) {
-    fft::c2c_2d(256, 256, a.data(), b.data(), fft::Direction::inverse);
-    benchmark::DoNotOptimize(b.data());
-  }
-}
-BENCHMARK(fft_c2c_256)->Unit(benchmark::kMillisecond);
-
-// The same transform on rows padded to 264 elements (what the scattering kernel's inverses
-// use): a contiguous power-of-two row under FFTW_ESTIMATE is much slower (cache sets). Not the
-// reference of the target, printed as a second ratio to show how much of it is the layout.
-void fft_c2c_256_padded(benchmark::State& state) {
-  constexpr std::size_t pitch = 256 + 8;
+/// One 256 × 256 inverse c2c, rows `pitch` elements apart (256: contiguous).
+void fft_c2c_256(benchmark::State& state, bool measured, std::size_t pitch) {
+  use_plans(measured);
   fft::Buffer<fft::cfloat> a(256 * pitch), b(256 * pitch);
   for (std::size_t i = 0; i < a.size(); ++i) a[i] = fft::cfloat(static_cast<float>(i % 7), 0.0f);
-  fft::c2c_2d_pitched(256, 256, a.data(), pitch, b.data(), pitch, fft::Direction::inverse);
+  const auto once = [&] {
+    if (pitch == 256) fft::c2c_2d(256, 256, a.data(), b.data(), fft::Direction::inverse);
+    else fft::c2c_2d_pitched(256, 256, a.data(), pitch, b.data(), pitch, fft::Direction::inverse);
+  };
+  once();  // plan outside the timing
   for (auto _ : state) {
-    fft::c2c_2d_pitched(256, 256, a.data(), pitch, b.data(), pitch, fft::Direction::inverse);
+    once();
     benchmark::DoNotOptimize(b.data());
   }
 }
-BENCHMARK(fft_c2c_256_padded)->Unit(benchmark::kMillisecond);
 
-void scattering(benchmark::State& state, bool crop) {
+void scattering(benchmark::State& state, bool measured, bool crop) {
+  use_plans(measured);
   auto k = kernel(std::string("[stats.scattering]\nscales = 6\norientations = 8\ncrop = ") + (crop ? "true" : "false"));
   const auto x = noise(256 * 256);
   stats::Geometry g{{256, 256}};
   benchmark::DoNotOptimize(k->measure(x.data(), g));  // filters and plans built outside the timing
   for (auto _ : state) benchmark::DoNotOptimize(k->measure(x.data(), g));
 }
-BENCHMARK_CAPTURE(scattering, cropped, true)->Unit(benchmark::kMillisecond);
-BENCHMARK_CAPTURE(scattering, full, false)->Unit(benchmark::kMillisecond);
 
 const std::array<std::size_t, 3> chunk{128, 128, 1024};
 
-void fft_r2c_chunk(benchmark::State& state) {
-  const auto x = noise(chunk[0] * chunk[1] * chunk[2]);
-  fft::Buffer<fft::cfloat> out(chunk[0] * chunk[1] * (chunk[2] / 2 + 1));
-  fft::r2c_3d(chunk, x.data(), out.data());
+/// The chunk's forward r2c: out of place (what the power kernel runs), or in place on padded rows.
+void fft_r2c_chunk(benchmark::State& state, bool measured, bool in_place) {
+  use_plans(measured);
+  const std::size_t h = chunk[0] * chunk[1] * (chunk[2] / 2 + 1);
+  fft::Buffer<float> in(in_place ? 2 * h : chunk[0] * chunk[1] * chunk[2]);
+  fft::Buffer<fft::cfloat> out(in_place ? 0 : h);
+  std::fill_n(in.data(), in.size(), 0.5f);
+  auto* o = in_place ? reinterpret_cast<fft::cfloat*>(in.data()) : out.data();
+  fft::r2c_3d(chunk, in.data(), o);
   for (auto _ : state) {
-    fft::r2c_3d(chunk, x.data(), out.data());
-    benchmark::DoNotOptimize(out.data());
+    fft::r2c_3d(chunk, in.data(), o);
+    benchmark::DoNotOptimize(o);
   }
 }
-BENCHMARK(fft_r2c_chunk)->Unit(benchmark::kMillisecond);
 
-void power_chunk(benchmark::State& state) {
+void power_chunk(benchmark::State& state, bool measured) {
+  use_plans(measured);
   auto k = kernel("[stats.power]\nbins = 12\n");
   const auto x = noise(chunk[0] * chunk[1] * chunk[2]);
   stats::Geometry g{{chunk[0], chunk[1], chunk[2]}, {1.5, 1.5, 1.5}};
   benchmark::DoNotOptimize(k->measure(x.data(), g));
   for (auto _ : state) benchmark::DoNotOptimize(k->measure(x.data(), g));
 }
-BENCHMARK(power_chunk)->Unit(benchmark::kMillisecond);
 
-/// Keeps each benchmark's mean wall time per iteration for the ratio lines.
-class Collect : public benchmark::ConsoleReporter {
- public:
-  std::map<std::string, double> seconds, cpu_seconds;
-  void ReportRuns(const std::vector<Run>& runs) override {
-    for (const auto& r : runs)
-      if (r.iterations > 0) {
-        seconds[r.benchmark_name()] = r.real_accumulated_time / static_cast<double>(r.iterations);
-        cpu_seconds[r.benchmark_name()] = r.cpu_accumulated_time / static_cast<double>(r.iterations);
-      }
-    ConsoleReporter::ReportRuns(runs);
-  }
-};
+/// CPU seconds of the tests' numpy reference (bench/numpy_reference.py), or 0 if it fails.
+double numpy_seconds(const std::string& args) {
+  const std::string cmd = "/usr/bin/python3 " SPINFLIP_SOURCE_DIR "/bench/numpy_reference.py " + args;
+  FILE* p = popen(cmd.c_str(), "r");
+  if (p == nullptr) return 0;
+  double s = 0;
+  if (std::fscanf(p, "%lf", &s) != 1) s = 0;
+  return pclose(p) == 0 ? s : 0;
+}
 
 }  // namespace
 
 int main(int argc, char** argv) {
-  benchmark::Initialize(&argc, argv);
-  Collect reporter;
+  int numpy_reps = 2;
+  bool numpy = true;
+  std::vector<char*> rest{argv[0]};
+  for (int i = 1; i < argc; ++i) {
+    if (std::strncmp(argv[i], "--numpy_reps=", 13) == 0) numpy_reps = std::atoi(argv[i] + 13);
+    else if (std::strcmp(argv[i], "--no_numpy") == 0) numpy = false;
+    else rest.push_back(argv[i]);
+  }
+  int rc = static_cast<int>(rest.size());
+  using benchmark::RegisterBenchmark;
+  const auto ms = benchmark::kMillisecond;
+  // Measured first (every plan measured once, on first use), FFTW_ESTIMATE after.
+  for (bool m : {true, false}) {
+    const std::string tag = m ? "measured" : "estimate";
+    RegisterBenchmark(("fft_c2c_256_contiguous/" + tag).c_str(), fft_c2c_256, m, std::size_t{256})->Unit(ms);
+    RegisterBenchmark(("fft_c2c_256_padded/" + tag).c_str(), fft_c2c_256, m, std::size_t{264})->Unit(ms);
+    RegisterBenchmark(("scattering_cropped/" + tag).c_str(), scattering, m, true)->Unit(ms);
+    if (m) RegisterBenchmark(("scattering_full/" + tag).c_str(), scattering, m, false)->Unit(ms);
+    RegisterBenchmark(("fft_r2c_chunk_out_of_place/" + tag).c_str(), fft_r2c_chunk, m, false)->Unit(ms);
+    RegisterBenchmark(("fft_r2c_chunk_in_place/" + tag).c_str(), fft_r2c_chunk, m, true)->Unit(ms);
+    RegisterBenchmark(("power_chunk/" + tag).c_str(), power_chunk, m)->Unit(ms);
+  }
+  benchmark::Initialize(&rc, rest.data());
+  fft::clear_plan_records();
+  bench::SecondsPerIteration reporter(bench::SecondsPerIteration::Clock::cpu);
   benchmark::RunSpecifiedBenchmarks(&reporter);
+  std::printf("\nplanning (measured plans, one-off):\n");
+  for (const auto& r : fft::plan_records())
+    if (r.how == "measured") std::printf("  %8.3f s  %s\n", r.seconds, r.problem.c_str());
+
   auto& s = reporter.seconds;
-  auto& c = reporter.cpu_seconds;
-  // CPU-time ratios too: on a shared machine wall time includes waiting for a core.
-  auto ratio = [&](const char* what, const char* a, const char* b, const char* target) {
-    if (s.count(a) && s.count(b))
-      std::printf("%-52s wall %8.1f  cpu %8.1f   (%s)\n", what, s[a] / s[b], c[a] / c[b], target);
+  const auto t = [&](const std::string& name) { return s.count(name) ? s[name] : 0.0; };
+  const auto faster = [&](const char* a, const char* b, const char* la, const char* lb, const char** which) {
+    const double x = t(a), y = t(b);
+    *which = (x > 0 && (y == 0 || x <= y)) ? la : lb;
+    return (x > 0 && (y == 0 || x <= y)) ? x : y;
   };
-  std::printf("\nratios (same run, one thread):\n");
-  ratio("scattering 256² J=6 L=8 (cropped) / c2c FFT 256²", "scattering/cropped", "fft_c2c_256", "target <= 160");
-  ratio("scattering 256² full resolution / c2c FFT 256²", "scattering/full", "fft_c2c_256", "reference");
-  ratio("cropped / padded-row c2c FFT 256² (not the target)", "scattering/cropped", "fft_c2c_256_padded", "layout");
-  ratio("full resolution / padded-row c2c FFT 256²", "scattering/full", "fft_c2c_256_padded", "layout");
-  ratio("contiguous c2c FFT / padded-row c2c FFT 256²", "fft_c2c_256", "fft_c2c_256_padded", "layout");
-  ratio("speed-up of cropping: full / cropped", "scattering/full", "scattering/cropped", "higher is better");
-  ratio("spherical power 128x128x1024 / its r2c FFT", "power_chunk", "fft_r2c_chunk", "target <= 1.5");
+  const char* c2c_layout = "";
+  const char* r2c_layout = "";
+  const double c2c = faster("fft_c2c_256_contiguous/measured", "fft_c2c_256_padded/measured", "contiguous",
+                            "padded rows", &c2c_layout);
+  const double r2c = faster("fft_r2c_chunk_out_of_place/measured", "fft_r2c_chunk_in_place/measured", "out of place",
+                            "in place", &r2c_layout);
+  const double sc = t("scattering_cropped/measured"), sf = t("scattering_full/measured");
+  const double pw = t("power_chunk/measured");
+  const double np_sc = numpy ? numpy_seconds("scattering 256 6 8 " + std::to_string(numpy_reps)) : 0;
+  const double np_pw = numpy ? numpy_seconds("power 128 128 1024 " + std::to_string(numpy_reps)) : 0;
+
+  std::printf("\nCPU seconds: c2c 256² fastest (%s, measured) %.3g; scattering cropped %.4g, full %.4g; r2c "
+              "128x128x1024 fastest (%s, measured) %.4g; power %.4g; numpy float64: scattering %.4g, power %.4g\n",
+              c2c_layout, c2c, sc, sf, r2c_layout, r2c, pw, np_sc, np_pw);
+  std::printf("ratios (same run, one thread, CPU time):\n");
+  const auto line = [](const char* what, double a, double b, const char* target) {
+    if (a > 0 && b > 0) std::printf("  %-66s %8.2f   (%s)\n", what, a / b, target);
+  };
+  line("scattering 256² J=6 L=8 cropped / fastest c2c FFT 256²", sc, c2c, "target <= 200");
+  line("scattering 256² full resolution / fastest c2c FFT 256²", sf, c2c, "reference");
+  line("numpy float64 scattering (tests' reference) / spinflip cropped", np_sc, sc, "target >= 80");
+  line("spherical power 128x128x1024 / its fastest r2c FFT", pw, r2c, "target <= 1.5");
+  line("numpy float64 spherical power (tests' reference) / spinflip", np_pw, pw, "speed-up");
+  line("c2c 256² contiguous / padded rows, measured", t("fft_c2c_256_contiguous/measured"),
+       t("fft_c2c_256_padded/measured"), "layout");
+  line("c2c 256² contiguous / padded rows, FFTW_ESTIMATE", t("fft_c2c_256_contiguous/estimate"),
+       t("fft_c2c_256_padded/estimate"), "layout");
+  std::printf("before (FFTW_ESTIMATE plans, as the project planned until issue 18):\n");
+  line("scattering cropped (estimate) / contiguous c2c 256² (estimate)", t("scattering_cropped/estimate"),
+       t("fft_c2c_256_contiguous/estimate"), "the old denominator");
+  line("scattering cropped (estimate) / fastest c2c 256² (measured)", t("scattering_cropped/estimate"), c2c,
+       "honest");
+  line("numpy float64 scattering / spinflip cropped (estimate)", np_sc, t("scattering_cropped/estimate"), "speed-up");
+  line("power (estimate) / r2c out of place (estimate)", t("power_chunk/estimate"),
+       t("fft_r2c_chunk_out_of_place/estimate"), "the old denominator");
+  line("power (estimate) / fastest r2c (measured)", t("power_chunk/estimate"), r2c, "honest");
+  line("speed-up of measured plans: scattering cropped", t("scattering_cropped/estimate"), sc, "higher is better");
+  line("speed-up of measured plans: spherical power", t("power_chunk/estimate"), pw, "higher is better");
   benchmark::Shutdown();
   return 0;
 }

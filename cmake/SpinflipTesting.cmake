@@ -4,7 +4,10 @@ include(GoogleTest)
 
 set(SPINFLIP_PYTHON /usr/bin/python3 CACHE FILEPATH "Debian python with numpy/scipy/h5py/astropy")
 # mpiexec must work as root in containers and CI, and oversubscribe a 2-core box.
-set(SPINFLIP_MPI_ENV "OMPI_ALLOW_RUN_AS_ROOT=1;OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1;OMPI_MCA_rmaps_base_oversubscribe=1;OMPI_MCA_btl_vader_single_copy_mechanism=none")
+# Tests keep FFT wisdom in the build tree (not the user's cache) and share it, so a
+# shape is measured once per suite (docs/driver.md, "FFT plans").
+set(SPINFLIP_TEST_CACHE "XDG_CACHE_HOME=${PROJECT_BINARY_DIR}/test-cache")
+set(SPINFLIP_MPI_ENV "OMPI_ALLOW_RUN_AS_ROOT=1;OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1;OMPI_MCA_rmaps_base_oversubscribe=1;OMPI_MCA_btl_vader_single_copy_mechanism=none;${SPINFLIP_TEST_CACHE}")
 
 # spinflip_add_gtest(NAME src... LIBS libs... [LABELS l...])
 function(spinflip_add_gtest name)
@@ -14,7 +17,7 @@ function(spinflip_add_gtest name)
   if(NOT T_LABELS)
     set(T_LABELS unit)
   endif()
-  gtest_discover_tests(${name} PROPERTIES LABELS "${T_LABELS}" DISCOVERY_TIMEOUT 60)
+  gtest_discover_tests(${name} PROPERTIES LABELS "${T_LABELS}" ENVIRONMENT "${SPINFLIP_TEST_CACHE}" DISCOVERY_TIMEOUT 60)
 endfunction()
 
 # spinflip_add_mpi_test(NAME SOURCES ... LIBS ... RANKS 1 2 4): one ctest per rank

@@ -203,8 +203,13 @@ SharedWisdom share_wisdom(MPI_Comm world, const std::optional<std::filesystem::p
 
   std::string used;
   core::run_on_root(world, [&] {
-    if (from_own == 1) {
-      used = text;  // as read: the catalogue's record stays the file's checksum
+    bool measured = false;
+    for (const auto& r : shared.made) measured = measured || r.how == "measured" || r.how == "patient";
+    if (from_own == 1 || !measured) {
+      // Nothing new: keep the text as read (FFTW's export of the same wisdom need
+      // not be the same text), so runs from one wisdom record one checksum.
+      used = text;
+      if (own && from_own == 0) write_wisdom_file(*own, used);
       return;
     }
     used = wisdom_text();

@@ -2,7 +2,9 @@
 user would). Every dataset must be present in both with the same shape and dtype;
 data must be bit-identical (NaN == NaN), except the run-dependent columns
 /entries/wall_time_s and /entries/rank. With rtol > 0, floats may differ by that
-relative amount (different group sizes: serial vs distributed FFT)."""
+relative amount (different group sizes: serial vs distributed FFT); scale_atol
+adds that fraction of a dataset's largest |value| to atol (values that are float
+rounding residue of an exact zero, such as the mean of a field without its k = 0 mode)."""
 import h5py
 import numpy as np
 
@@ -15,7 +17,7 @@ def datasets(f):
     return sorted(names)
 
 
-def compare(path_a, path_b, rtol=0.0, atol=0.0):
+def compare(path_a, path_b, rtol=0.0, atol=0.0, scale_atol=0.0):
     """Return a list of differences (empty: the same data)."""
     problems = []
     with h5py.File(path_a, "r") as a, h5py.File(path_b, "r") as b:
@@ -33,7 +35,8 @@ def compare(path_a, path_b, rtol=0.0, atol=0.0):
                 if rtol == 0.0 and atol == 0.0:
                     same = np.array_equal(x.view(np.uint8), y.view(np.uint8)) if x.size else True
                 else:
-                    same = np.allclose(x, y, rtol=rtol, atol=atol, equal_nan=True)
+                    scale = np.nanmax(np.abs(x)) if scale_atol and np.isfinite(x).any() else 0.0
+                    same = np.allclose(x, y, rtol=rtol, atol=atol + scale_atol * scale, equal_nan=True)
             else:
                 same = np.array_equal(x, y)
             if not same:

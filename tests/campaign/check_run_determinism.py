@@ -1,7 +1,12 @@
 """`spinflip run` on jobs/tiny at 1, 2 and 4 ranks (group size 1) gives catalogues
 whose data are identical byte for byte (DESIGN.md §3), read back with h5py
 (DESIGN.md §10); group size 2 (FFTW-MPI slabs) agrees to float rounding. The
-`spinflip cone` file of an entry matches that entry's catalogue rows."""
+`spinflip cone` file of an entry matches that entry's catalogue rows.
+FFT plans (DESIGN.md §11): the runs share one wisdom (prepared by `spinflip plan
+--fft-plans` into a cache of this test's own), each catalogue records its sha256
+and keeps it beside itself; a run with another wisdom (none: estimate plans)
+agrees to float rounding."""
+import hashlib
 import json
 import os
 import sys
@@ -16,6 +21,12 @@ from run_support import TINY, Checks, spinflip  # noqa: E402
 
 check = Checks()
 with tempfile.TemporaryDirectory() as tmp:
+    os.environ["XDG_CACHE_HOME"] = os.path.join(tmp, "cache")  # this test's own wisdom cache
+    p = spinflip("plan", TINY, "--fft-plans")
+    check(p.returncode == 0 and "fft plans (measure" in p.stdout and " s  measured " in p.stdout,
+          f"plan --fft-plans measures and prints the planning time per shape ({p.returncode}: {p.stdout[-1500:]})")
+    cache = os.path.join(tmp, "cache", "spinflip", "fftw-wisdom")
+    check(os.path.getsize(cache) > 0, "plan --fft-plans keeps the wisdom in $XDG_CACHE_HOME/spinflip")
     paths = {}
     for ranks in (1, 2, 4):
         paths[ranks] = os.path.join(tmp, f"np{ranks}.h5")
@@ -25,6 +36,27 @@ with tempfile.TemporaryDirectory() as tmp:
     for ranks in (2, 4):
         diff = compare(paths[1], paths[ranks])
         check(not diff, f"1 vs {ranks} ranks: {diff}")
+    shas = {}
+    for ranks, path in paths.items():
+        with h5py.File(path, "r") as f:
+            shas[ranks] = f.attrs["fft_wisdom_sha256"]
+        own = hashlib.sha256(open(path + ".fftw-wisdom", "rb").read()).hexdigest()  # hashlib: the reference sha256
+        check(shas[ranks] == own, f"{ranks} ranks: fft_wisdom_sha256 is the sha256 of the wisdom kept beside it")
+    check(len(set(shas.values())) == 1, f"one wisdom for 1, 2 and 4 ranks: {shas}")
+
+    # Another wisdom: an empty file beside a new catalogue means no wisdom, so every
+    # plan is FFTW_ESTIMATE's. The values agree to float rounding: float32 transforms
+    # round to ~ε log2 N ≈ 1e-6 of the field's scale (ε = 6e-8, N ~ 1e5), so 2e-6
+    # relative, plus 2e-6 of the dataset's largest value for coefficients that are the
+    # rounding residue of an exact zero (a mean without k = 0, wedge-emptied bins).
+    other = os.path.join(tmp, "other.h5")
+    open(other + ".fftw-wisdom", "w").close()
+    p = spinflip("run", TINY, "-o", other, ranks=2)
+    check(p.returncode == 0, f"run with an empty wisdom exits 0 ({p.stderr[-2000:]})")
+    with h5py.File(other, "r") as f:
+        check(f.attrs["fft_wisdom_sha256"] == hashlib.sha256(b"").hexdigest(), "the empty wisdom is recorded")
+    diff = compare(paths[1], other, rtol=2e-6, atol=0.0, scale_atol=2e-6)
+    check(not diff, f"measured vs estimate plans: {diff}")
 
     g2 = os.path.join(tmp, "g2.h5")
     p = spinflip("run", TINY, "-o", g2, "--group-size", "2", ranks=2)

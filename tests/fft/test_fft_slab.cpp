@@ -5,8 +5,12 @@
 
 #include <cmath>
 #include <complex>
+#include <cstring>
+#include <string>
+#include <vector>
 
 #include "fft/fft.hpp"
+#include "fft/planning.hpp"
 
 using namespace spinflip;
 
@@ -44,4 +48,38 @@ TEST(SlabField, DistributedEqualsSerial) {
   unsigned long mine = dist.local_n0(), total = 0;
   MPI_Allreduce(&mine, &total, 1, MPI_UNSIGNED_LONG, MPI_SUM, MPI_COMM_WORLD);
   EXPECT_EQ(total, n[0]);
+}
+
+// One wisdom for every rank (DESIGN.md §3, §11): made on rank 0 (serial plans) and by
+// the world together (the slab plans), shared before any plan of the "run"; then every
+// rank plans from it, and the same serial transform gives the same bytes on every rank.
+TEST(SlabField, SharedWisdomGivesEveryRankTheSamePlans) {
+  int rank = 0;
+  MPI_Comm_rank(MPI_COMM_WORLD, &rank);
+  fft::set_planning({fft::Rigor::measure, 5.0});
+  const std::array<std::size_t, 3> n{12, 8, 16};
+  const std::size_t m0 = 32, m1 = 48;
+  std::vector<fft::cfloat> x(m0 * m1);
+  for (std::size_t i = 0; i < x.size(); ++i) x[i] = {float(std::sin(0.1 * double(i))), float(i % 5)};
+  fft::Buffer<fft::cfloat> in(m0 * m1), out(m0 * m1);
+  std::copy(x.begin(), x.end(), in.data());
+  const auto shared = fft::share_wisdom(MPI_COMM_WORLD, std::nullopt, std::nullopt, [&] {
+    { const fft::SlabField f(n, MPI_COMM_WORLD); }
+    fft::gather_wisdom(MPI_COMM_WORLD);
+    if (rank == 0) fft::c2c_2d(m0, m1, in.data(), out.data(), fft::Direction::forward);
+  });
+  // Every rank holds rank 0's wisdom.
+  std::string sha0 = shared.sha256;
+  sha0.resize(64);
+  MPI_Bcast(sha0.data(), 64, MPI_CHAR, 0, MPI_COMM_WORLD);
+  EXPECT_EQ(shared.sha256, sha0);
+  fft::clear_plan_records();
+  fft::SlabField field(n, MPI_COMM_WORLD);
+  fft::c2c_2d(m0, m1, in.data(), out.data(), fft::Direction::forward);
+  for (const auto& r : fft::plan_records()) EXPECT_EQ(r.how, "from wisdom") << r.problem;
+  std::vector<fft::cfloat> mine(out.data(), out.data() + out.size()), root = mine;
+  MPI_Bcast(root.data(), static_cast<int>(2 * root.size()), MPI_FLOAT, 0, MPI_COMM_WORLD);
+  EXPECT_EQ(std::memcmp(mine.data(), root.data(), mine.size() * sizeof(fft::cfloat)), 0);
+  fft::set_wisdom_only(false);
+  fft::set_planning({});
 }

@@ -339,6 +339,15 @@ struct Planner {
     if (st.planning.rigor == Rigor::estimate) {
       plan = make<Api>(p, cin, cout, FFTW_ESTIMATE);
       how = "estimate";
+    } else if (st.wisdom_only) {
+      // FFTW_ESTIMATE takes any wisdom there is for the problem (also wisdom of a plan
+      // whose measuring hit the time limit), and touches no array.
+      plan = make<Api>(p, cin, cout, FFTW_ESTIMATE | FFTW_WISDOM_ONLY);
+      how = "from wisdom";
+      if (plan == nullptr) {
+        plan = make<Api>(p, cin, cout, FFTW_ESTIMATE);
+        how = "estimate (not in wisdom)";
+      }
     } else {
       const unsigned rigor = detail::rigor_flag(st.planning.rigor);
       Api::set_timelimit(st.planning.time_limit_s);
@@ -346,9 +355,6 @@ struct Planner {
       plan = make<Api>(p, s.in(), s.out(), rigor | FFTW_WISDOM_ONLY);
       if (plan != nullptr) {
         how = "from wisdom";
-      } else if (st.wisdom_only) {
-        plan = make<Api>(p, cin, cout, FFTW_ESTIMATE);
-        how = "estimate (not in wisdom)";
       } else {
         plan = make<Api>(p, s.in(), s.out(), rigor);
         how = detail::rigor_name(st.planning.rigor);
@@ -628,7 +634,8 @@ SlabField::SlabField(const std::array<std::size_t, 3>& global_shape, MPI_Comm co
   std::string how = "estimate";
   bool ok = false;
   if (st.planning.rigor != Rigor::estimate) {
-    const unsigned rigor = detail::rigor_flag(st.planning.rigor);
+    // As for serial plans: wisdom-only takes any wisdom there is (FFTW_ESTIMATE looks it up).
+    const unsigned rigor = st.wisdom_only ? FFTW_ESTIMATE : detail::rigor_flag(st.planning.rigor);
     fftwf_set_timelimit(st.planning.time_limit_s);
     ok = m.plan(rigor | FFTW_WISDOM_ONLY);
     how = "from wisdom";

@@ -20,4 +20,9 @@ std::recursive_mutex& planner_mutex();
 State& state();
 void ensure_mpi_init();
 void forget_cached_plans();
+/// FFTW's flag for a rigor, and the word plan records use for it.
+unsigned rigor_flag(Rigor r);
+const char* rigor_name(Rigor r);
+/// Append a plan record (call with the planner lock held).
+void record(std::string problem, double seconds, std::string how);
 }  // namespace spinflip::fft::detail

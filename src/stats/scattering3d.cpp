@@ -286,16 +286,43 @@ double line_of_sight(const cf* W, std::size_t g1, std::size_t g2, std::size_t pl
   fit(fbuf, block * g3);
   cf* F = fbuf.data();
   const float sc = static_cast<float>(scale);
+  // The box [lo, hi] lands at (s - c) mod g3: at most two runs on each side of s = 0, so the
+  // per-line loops below are plain (no division); the cells outside the box are zeroed once per line.
+  struct Run {
+    long s;
+    std::size_t d, len;
+  };
+  std::vector<Run> runs;
+  auto add_runs = [&](long a, long b) {  // s in [a, b]
+    while (a <= b) {
+      const std::size_t d = wrap(a - z.c, g3), len = std::min<std::size_t>(static_cast<std::size_t>(b - a + 1), g3 - d);
+      runs.push_back({a, d, len});
+      a += static_cast<long>(len);
+    }
+  };
+  add_runs(z.lo, std::min(z.hi, -1L));
+  const std::size_t n_negative = runs.size();
+  add_runs(std::max(z.lo, 0L), z.hi);
+  const std::size_t width = static_cast<std::size_t>(z.hi - z.lo + 1);
+  const std::size_t gap_start = wrap(z.hi + 1 - z.c, g3), gap = g3 - width;  // cells never written
   double total = 0;
   for (std::size_t l0 = 0; l0 < lines; l0 += block) {
     const std::size_t nb = std::min(block, lines - l0);
     for (std::size_t l = 0; l < nb; ++l) {
       const cf* w = W + (l0 + l) * planes;
       cf* f = F + l * g3;
-      std::fill(f, f + g3, cf(0, 0));
-      for (long s = z.lo; s <= z.hi; ++s) {
-        const cf v = s >= 0 ? w[s] : std::conj(w[-s]);  // the transverse stage's field is real
-        f[wrap(s - z.c, g3)] = v * z.value[static_cast<std::size_t>(s - z.lo)];
+      for (std::size_t t = 0; t < gap; ++t) f[(gap_start + t) % g3] = cf(0, 0);
+      for (std::size_t r = 0; r < runs.size(); ++r) {
+        const Run& run = runs[r];
+        const float* v = z.value.data() + (run.s - z.lo);
+        cf* dst = f + run.d;
+        if (r < n_negative) {  // the transverse stage's field is real: w(-k3) = conj w(k3)
+          const cf* src = w - run.s;
+          for (std::size_t t = 0; t < run.len; ++t) dst[t] = std::conj(*(src - t)) * v[t];
+        } else {
+          const cf* src = w + run.s;
+          for (std::size_t t = 0; t < run.len; ++t) dst[t] = src[t] * v[t];
+        }
       }
     }
     fft::c2c_1d_batch(g3, nb, F, 1, g3, F, 1, g3, fft::Direction::inverse);

@@ -11,10 +11,10 @@
 
 #include <cmath>
 #include <cstdio>
+#include <map>
 #include <random>
 #include <string>
 
-#include "bench_support.hpp"
 #include "core/config.hpp"
 #include "fft/fft.hpp"
 #include "stats/stats.hpp"
@@ -72,16 +72,30 @@ BENCHMARK_CAPTURE(scattering3d, full, false)->Unit(benchmark::kMillisecond);
 
 }  // namespace
 
+/// Wall and CPU seconds per iteration of each run (on a shared machine wall time includes waiting for a core).
+class Collect : public benchmark::ConsoleReporter {
+ public:
+  std::map<std::string, double> wall, cpu;
+  void ReportRuns(const std::vector<Run>& runs) override {
+    for (const auto& r : runs)
+      if (r.run_type == Run::RT_Iteration && r.iterations > 0) {
+        wall[r.benchmark_name()] = r.real_accumulated_time / static_cast<double>(r.iterations);
+        cpu[r.benchmark_name()] = r.cpu_accumulated_time / static_cast<double>(r.iterations);
+      }
+    ConsoleReporter::ReportRuns(runs);
+  }
+};
+
 int main(int argc, char** argv) {
   benchmark::Initialize(&argc, argv);
-  bench::SecondsPerIteration wall;
-  benchmark::RunSpecifiedBenchmarks(&wall);
-  auto& s = wall.seconds;
+  Collect c;
+  benchmark::RunSpecifiedBenchmarks(&c);
   auto ratio = [&](const char* what, const char* a, const char* b, const char* target) {
-    if (s.count(a) && s.count(b)) std::printf("%-58s %8.1f   (%s)\n", what, s[a] / s[b], target);
+    if (c.wall.count(a) && c.wall.count(b))
+      std::printf("%-62s wall %6.1f  cpu %6.1f   (%s)\n", what, c.wall[a] / c.wall[b], c.cpu[a] / c.cpu[b], target);
   };
-  std::printf("\nseconds per call (wall, one thread):\n");
-  for (const auto& [name, sec] : s) std::printf("  %-40s %.4f s\n", name.c_str(), sec);
+  std::printf("\nseconds per call (one thread):\n");
+  for (const auto& [name, sec] : c.wall) std::printf("  %-28s wall %.4f s  cpu %.4f s\n", name.c_str(), sec, c.cpu[name]);
   std::printf("ratios (same run):\n");
   ratio("scattering3d 128x128x64 J=4 M=3 (cropped) / r2c FFT (MEASURE)", "scattering3d/cropped", "fft_r2c_measured",
         "target <= 40");

@@ -3,8 +3,8 @@
 // pass/fail on time): defaults J = 4, M = 3 (S0 + S1 + S2, 61 coefficients) on a 128 × 128 × 64
 // lognormal chunk, cropped and at full resolution (crop = false), over one r2c FFT of the chunk
 // planned with FFTW_MEASURE (issue target ≤ 40). The speed-up over the numpy float64 reference
-// (tests/stats/check_scattering3d.py) is measured by bench/scattering3d_numpy.py, which runs this
-// benchmark and the numpy implementation one after the other.
+// (tests/stats/scattering3d_reference.py) is measured by bench/scattering3d_numpy.py, which times
+// `spinflip measure` and the numpy implementation on the same chunk in one run.
 //   bench_scattering3d [--benchmark_filter=...] [--benchmark_min_time=...]
 #include <benchmark/benchmark.h>
 #include <fftw3.h>

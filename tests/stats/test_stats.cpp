@@ -180,7 +180,9 @@ TEST(StatsThreads, ConcurrentChunkMeasureEqualsSerial) {
     for (auto& th : pool) th.join();
     for (std::size_t i = 0; i < fields.size(); ++i)
       for (std::size_t c = 0; c < serial[i].size(); ++c)
-        if (!std::isnan(serial[i][c])) EXPECT_EQ(serial[i][c], parallel[i][c]) << fresh[k]->name() << " chunk " << i;
+        if (!std::isnan(serial[i][c])) {
+          EXPECT_EQ(serial[i][c], parallel[i][c]) << fresh[k]->name() << " chunk " << i;
+        }
   }
 }
 

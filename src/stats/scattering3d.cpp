@@ -5,8 +5,7 @@
 //   1. one transverse 2D inverse per line-of-sight frequency plane of the half spectrum (shared by
 //      every m at this j), giving v̂_j(x1, x2, k3) for k3 ≥ 0 (k3 < 0 by Hermitian symmetry);
 //   2. per m, one batch of 1D inverses along the line of sight of v̂_j · Z_m,
-// which is the full-resolution definition rearranged (crop = false), at about half the cost of a 3D
-// transform per filter. With `crop`, each step keeps only the Fourier box where |filter| exceeds
+// which is the full-resolution definition rearranged (crop = false), with no full 3D inverse per filter. With `crop`, each step keeps only the Fourier box where |filter| exceeds
 // 1e-6 of its peak and inverts on a smaller grid (the line-of-sight box shifted to its centre, which
 // only changes the phase), oversampled so that means over the coarse samples match the full-grid
 // means within the contract's tolerance (tests/stats/check_scattering3d.py).

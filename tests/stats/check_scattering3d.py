@@ -77,6 +77,12 @@ close(r["values"][0], reference(x, 3, 2, normalise=True, **kw), what="40x32x24 n
 check(r["attrs"]["normalise"] == 1 and r["attrs"]["transverse_scales"] == 3 and r["attrs"]["los_scales"] == 2,
       "group attributes normalise, transverse_scales, los_scales recorded")
 
+# odd sizes on every axis (fftfreq without a Nyquist plane; the r2c half spectrum's last plane is not
+# its own mirror)
+x = lognormal((27, 25, 23))
+for crop in (True, False):
+    close(run(x, stats_text(3, 2, crop=crop))["values"][0], reference(x, 3, 2), what=f"odd 27x25x23 crop={crop}")
+
 # --- axes: order, j1, m1, j2, m2 with -1 where unused, in the contract's order
 r = run(fields["white noise"], stats_text())
 want = [(0, -1, -1, -1, -1)] + [(1, j, m, -1, -1) for j in range(4) for m in range(3)] + \

@@ -1,6 +1,7 @@
 // Internal helpers shared by the three verbs.
 #pragma once
 #include <cstdint>
+#include <memory>
 #include <optional>
 #include <string>
 #include <vector>
@@ -8,7 +9,22 @@
 #include "analysis/analysis.hpp"
 #include "analysis/h5.hpp"
 
+namespace spinflip::cosmo { class Cosmology; }
+
 namespace spinflip::analysis::detail {
+
+/// A scenario's foreground-wedge line k∥ = m(z) k⊥ + k_buffer (Mpc⁻¹), m(z) as the instrument
+/// computes it (wedge_angle_deg and wedge_buffer_per_mpc from the scenario group's attributes, the
+/// cosmology and cone.cell_mpc from the stored campaign at its fiducial point): `above_wedge=`.
+struct WedgeLine {
+  WedgeLine(const Catalogue& catalogue, const std::string& scenario);
+  double angle_deg = 90.0, buffer_per_mpc = 0.0, cell_mpc = 0.0;
+  double slope(double z) const;
+  bool above(double kperp_mpc, double kpar_mpc, double z) const;
+
+ private:
+  std::shared_ptr<const cosmo::Cosmology> cosmology_;
+};
 
 /// Done entries of one point, sorted by realisation. Pending entries are an
 /// InputError unless allow_incomplete; failed ones are skipped with a warning.

@@ -1,17 +1,20 @@
 // The --select syntax (docs/analysis.md): terms `key=value` separated by ';'.
 //   name=LABEL  kernel=K[,K]  scenario=S[,S]  freq=LO:HI  z=LO:HI  unit=I[,I]|LO:HI
 //   every=N  <axis>=V[,V]|LO:HI   (any coefficient axis: order, j1, k_mean, n_modes, …)
+//   above_wedge=SCENARIO   (cylindrical scattering: filters above that scenario's wedge line)
 #include <algorithm>
 #include <array>
 #include <map>
 #include <cmath>
 #include <cstdlib>
+#include <functional>
 #include <limits>
 #include <optional>
 #include <set>
 #include <sstream>
 
 #include "analysis/analysis.hpp"
+#include "analysis/internal.hpp"
 #include "core/errors.hpp"
 
 namespace spinflip::analysis {
@@ -90,6 +93,7 @@ Selection select(const Catalogue& catalogue, const std::string& text, std::size_
   std::optional<Filter> freq, z, unit;
   std::size_t every = 1;
   bool rotation = false;
+  std::optional<detail::WedgeLine> wedge;
   std::vector<Filter> axis_filters;
   std::vector<std::string> described;
   for (const auto& term : split(text, ';')) {
@@ -97,7 +101,8 @@ Selection select(const Catalogue& catalogue, const std::string& text, std::size_
     const auto eq = term.find('=');
     if (eq == std::string::npos)
       throw InputError("--select '" + text + "': term '" + term +
-                       "' is not key=value (keys: name, kernel, scenario, freq, z, unit, every, reduce, or a coefficient axis)");
+                       "' is not key=value (keys: name, kernel, scenario, freq, z, unit, every, reduce, above_wedge, or a coefficient "
+                       "axis)");
     const std::string key = trim(term.substr(0, eq)), value = trim(term.substr(eq + 1));
     if (key == "name") {
       if (value.empty() || value.find('/') != std::string::npos)
@@ -121,6 +126,11 @@ Selection select(const Catalogue& catalogue, const std::string& text, std::size_
       z = parse_filter(key, value, text);
     } else if (key == "unit") {
       unit = parse_filter(key, value, text);
+    } else if (key == "above_wedge") {
+      if (!all_scenarios.count(value))
+        throw InputError("--select '" + text + "': above_wedge=" + value + " is not a scenario of " + catalogue.path() +
+                         " (allowed: " + join({all_scenarios.begin(), all_scenarios.end()}) + ")");
+      wedge.emplace(catalogue, value);
     } else if (key == "reduce") {
       if (value != "rotation" && value != "none")
         throw InputError("--select '" + text + "': reduce=" + value + " is not allowed (allowed: rotation, none)");
@@ -151,7 +161,7 @@ Selection select(const Catalogue& catalogue, const std::string& text, std::size_
   for (const auto& f : axis_filters)
     if (!axes_seen.count(f.key))
       throw InputError("--select '" + text + "': '" + f.key +
-                       "' is neither a selection key (name, kernel, scenario, freq, z, unit, every, reduce) nor a coefficient "
+                       "' is neither a selection key (name, kernel, scenario, freq, z, unit, every, reduce, above_wedge) nor a coefficient "
                        "axis of the selected kernels (axes: " + join({axes_seen.begin(), axes_seen.end()}) + ")");
   std::size_t rotated = 0;
   for (std::size_t b : chosen) {
@@ -204,8 +214,31 @@ Selection select(const Catalogue& catalogue, const std::string& text, std::size_
     } else {
       for (std::size_t c : coeffs) proto.push_back({b, 0, c});
     }
+    // above_wedge: a coefficient is kept at a unit when its filter's centre (ξ_j, η_m)/Δ lies on or above the
+    // wedge line at the unit's redshift; S0 (the k = 0 mode) never is; S2 is judged by its first filter
+    // (j1, m1), because the chunk enters S2 only through x⋆ψ_{j1,m1} (docs/analysis.md).
+    std::function<bool(std::size_t, std::size_t)> keep = [](std::size_t, std::size_t) { return true; };
+    if (wedge) {
+      const bool filters = blk.axes.count("order") && blk.axes.count("j1") && blk.axes.count("m1") &&
+                           blk.attrs.count("xi0") && blk.attrs.count("eta0");
+      if (!filters)
+        throw InputError("--select '" + text + "': above_wedge applies to cylindrical scattering (kernel=scattering3d), "
+                         "whose filters have (k_perp, k_par) centres; " + blk.scenario + "/" + blk.kernel +
+                         " has none (add kernel=scattering3d)");
+      const double xi0 = number(blk.attrs.at("xi0"), "xi0", text), eta0 = number(blk.attrs.at("eta0"), "eta0", text);
+      keep = [&, xi0, eta0](std::size_t u, std::size_t c) {
+        if (blk.unit_z.size() != blk.n_units)
+          throw InputError(catalogue.path() + ": /stats/" + blk.scenario + "/" + blk.kernel +
+                           " has no unit_z dataset, so above_wedge cannot place its units");
+        if (std::lround(blk.axes.at("order")[c]) == 0) return false;
+        const double kperp = xi0 * std::pow(2.0, -blk.axes.at("j1")[c]) / wedge->cell_mpc;
+        const double kpar = eta0 * std::pow(2.0, -blk.axes.at("m1")[c]) / wedge->cell_mpc;
+        return wedge->above(kperp, kpar, blk.unit_z[u]);
+      };
+    }
     for (std::size_t k = 0; k < units.size(); k += every)
       for (auto el : proto) {
+        if (!keep(units[k], el.coeff)) continue;
         el.unit = units[k];
         sel.elements.push_back(std::move(el));
       }

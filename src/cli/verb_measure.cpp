@@ -135,7 +135,7 @@ int run_measure(const std::string& input, const std::string& stats_file, const s
   const auto config = core::Config::from_file(stats_file, schema);
   const auto kernels = stats::kernels_from(config);
   if (kernels.empty())
-    throw ConfigError(stats_file + ": no [stats.*] kernel table (power, slice_power, cylindrical, scattering, "
+    throw ConfigError(stats_file + ": no [stats.*] kernel table (power, slice_power, cylindrical, scattering, scattering3d, "
                                    "bispectrum, slice_bispectrum, moments, chunk_moments)");
 
   Field field = read_input(input);

@@ -18,6 +18,8 @@ namespace spinflip::stats::detail {
 std::unique_ptr<Kernel> make_power(const core::Config& c, const std::string& table, UnitKind kind);
 std::unique_ptr<Kernel> make_cylindrical(const core::Config& c);
 std::unique_ptr<Kernel> make_scattering(const core::Config& c);
+std::unique_ptr<Kernel> make_scattering3d(const core::Config& c);
+void declare_scattering3d(core::Schema& s);  // [stats.scattering3d] keys, beside the kernel
 std::unique_ptr<Kernel> make_bispectrum(const core::Config& c, const std::string& table, UnitKind kind);
 std::unique_ptr<Kernel> make_moments(const core::Config& c, const std::string& table, UnitKind kind);
 

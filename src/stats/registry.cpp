@@ -87,6 +87,8 @@ void declare_keys(core::Schema& s) {
   s.add({.path = w + ".crop", .type = ValueType::boolean, .default_value = true,
          .doc = "work on Fourier planes cropped to each filter's support (same result within 1e-4)"});
 
+  detail::declare_scattering3d(s);
+
   declare_bispectrum(s, "stats.bispectrum", "FFT shell-estimator bispectrum of 3D chunks for listed triangles.");
   declare_bispectrum(s, "stats.slice_bispectrum", "FFT shell-estimator bispectrum of slices for listed triangles.");
   declare_moments(s, "stats.moments", "One-point moments (mean, variance, skewness, excess kurtosis) of slices.");
@@ -100,6 +102,7 @@ std::vector<std::unique_ptr<Kernel>> kernels_from(const core::Config& config) {
     out.push_back(detail::make_power(config, "stats.slice_power", UnitKind::slice));
   if (config.has_table("stats.cylindrical")) out.push_back(detail::make_cylindrical(config));
   if (config.has_table("stats.scattering")) out.push_back(detail::make_scattering(config));
+  if (config.has_table("stats.scattering3d")) out.push_back(detail::make_scattering3d(config));
   if (config.has_table("stats.bispectrum"))
     out.push_back(detail::make_bispectrum(config, "stats.bispectrum", UnitKind::chunk));
   if (config.has_table("stats.slice_bispectrum"))

@@ -25,6 +25,8 @@
 #include "fft/fft.hpp"
 #include "sim/excursion_set.hpp"
 #include "sim/initial_conditions.hpp"
+#include "sim/cosmic_dawn.hpp"
+#include "sim/mode_bins.hpp"
 #include "sim/zeldovich.hpp"
 
 namespace spinflip::sim {
@@ -53,105 +55,6 @@ void filter_into(const fft::SlabField& src, fft::SlabField& dst, double cell_mpc
     }
   }
 }
-
-/// Top-hat window in Fourier space (common practice), from sin x and cos x.
-double top_hat(double x, double sin_x, double cos_x) {
-  return x < 1e-3 ? 1.0 - x * x / 10.0 : 3.0 * (sin_x - x * cos_x) / (x * x * x);
-}
-
-/// |k| of every local mode rounded to one of 65536 bins (2 bytes per mode): a radius's window is
-/// then a table of 65536 gains, and smoothing is a gather and a multiply per mode. The bin width
-/// is k_max/65535, so kR is off by at most k_max R/131070 (≤ 1e-3 for R ≤ 40 cells).
-struct ModeBins {
-  static constexpr std::size_t n_bins = 65536;
-  double dk = 1;
-  std::vector<std::uint16_t> bin;
-  ModeBins(const fft::SlabField& f, double cell_mpc) {
-    const auto& n = f.global_shape();
-    const double pi = std::numbers::pi;
-    const double k_top = std::sqrt(3.0) * pi / cell_mpc * 1.0001;
-    dk = k_top / static_cast<double>(n_bins - 1);
-    const std::size_t half = f.half_n2();
-    std::vector<double> kz2(half);
-    for (std::size_t kh = 0; kh < half; ++kh) {
-      const double k2 = 2.0 * pi * static_cast<double>(kh) / (static_cast<double>(n[2]) * cell_mpc);
-      kz2[kh] = k2 * k2;
-    }
-    bin.resize(f.local_n0() * n[1] * half);
-    const double inv_dk = 1.0 / dk;
-    for (std::size_t i = 0; i < f.local_n0(); ++i) {
-      const double k0 = detail::wavenumber(f.local_start0() + i, n[0], cell_mpc);
-      for (std::size_t j = 0; j < n[1]; ++j) {
-        const double k1 = detail::wavenumber(j, n[1], cell_mpc);
-        const double kp2 = k0 * k0 + k1 * k1;
-        std::uint16_t* b = bin.data() + (i * n[1] + j) * half;
-        for (std::size_t kh = 0; kh < half; ++kh)
-          b[kh] = static_cast<std::uint16_t>(static_cast<std::int32_t>(std::sqrt(kp2 + kz2[kh]) * inv_dk + 0.5));
-      }
-    }
-  }
-  /// The window's gain per bin: sin and cos of b·dk·R by rotation (one exact anchor every 512
-  /// bins keeps the recurrence's rounding below 1e-13).
-  void window(double radius, std::vector<float>& gain) const {
-    gain.resize(n_bins);
-    const double step = dk * radius;
-    const double cs = std::cos(step), sn = std::sin(step);
-    double s = 0, c = 1;
-    for (std::size_t b = 0; b < n_bins; ++b) {
-      const double x = static_cast<double>(b) * step;
-      if (b % 512 == 0) {
-        s = std::sin(x);
-        c = std::cos(x);
-      }
-      gain[b] = static_cast<float>(top_hat(x, s, c));
-      const double s1 = s * cs + c * sn;
-      c = c * cs - s * sn;
-      s = s1;
-    }
-  }
-  /// dst[i] = W(|k| R_i) src over the local modes for the radii of one batch (at most
-  /// max_batch), reading src and the bins once. The gains are interleaved by bin so that one
-  /// mode's gains share a cache line. The outputs are streamed past the caches (each is 4 bytes
-  /// per cell, read next by its transform, so caching its lines first would only add traffic).
-  static constexpr std::size_t max_batch = 2;  // 4 would save ~0.5 ms per radius for 8 more B/cell
-  void smooth(const fft::SlabField& src, fft::SlabField* const* dst, const double* radius, std::size_t m,
-              std::vector<float>& gains, std::vector<float>& one) const {
-    gains.resize(n_bins * m);
-    for (std::size_t i = 0; i < m; ++i) {
-      window(radius[i], one);
-      for (std::size_t b = 0; b < n_bins; ++b) gains[b * m + i] = one[b];
-    }
-    switch (m) {
-      case 1: smooth_m<1>(src, dst, gains.data()); break;
-      default: smooth_m<2>(src, dst, gains.data()); break;
-    }
-  }
-  template <std::size_t M>
-  void smooth_m(const fft::SlabField& src, fft::SlabField* const* dst, const float* gains) const {
-    const std::uint16_t* bq = bin.data();
-    const float* a = reinterpret_cast<const float*>(src.complex_data());
-    float* out[M];
-    for (std::size_t i = 0; i < M; ++i) out[i] = reinterpret_cast<float*>(dst[i]->complex_data());
-    const std::size_t n = bin.size();
-    std::size_t q = 0;
-#if defined(__SSE2__)
-    for (; q + 2 <= n; q += 2) {
-      const __m128 v = _mm_load_ps(a + 2 * q);
-      const float* g0 = gains + std::size_t{bq[q]} * M;
-      const float* g1 = gains + std::size_t{bq[q + 1]} * M;
-      for (std::size_t i = 0; i < M; ++i)
-        _mm_stream_ps(out[i] + 2 * q, _mm_mul_ps(v, _mm_set_ps(g1[i], g1[i], g0[i], g0[i])));
-    }
-    _mm_sfence();
-#endif
-    for (; q < n; ++q)
-      for (std::size_t i = 0; i < M; ++i) {
-        const float g = gains[std::size_t{bq[q]} * M + i];
-        out[i][2 * q] = a[2 * q] * g;
-        out[i][2 * q + 1] = a[2 * q + 1] * g;
-      }
-  }
-};
 
 /// Z_R(δ): the barrier's inverse read from its uniform-δ table by linear interpolation (−inf
 /// below the lowest node, NaN → −inf). One definition for the per-cell passes and the
@@ -229,7 +132,7 @@ struct WorkStorage {
   std::array<std::size_t, 3> shape{0, 0, 0};
   double cell_mpc = 0;
   std::deque<fft::SlabField> fields;  // [0]: the z = 0 Fourier density; [1..]: work fields (stable references)
-  std::optional<ModeBins> bins;
+  std::optional<detail::ModeBins> bins;
   std::vector<std::uint8_t> ionized;  // 1: ionized at the cell's own redshift by some radius
 };
 
@@ -257,7 +160,52 @@ fft::SlabField& field(WorkStorage& w, std::size_t i, MPI_Comm group) {
   return w.fields[i];
 }
 
-detail::Efficiency efficiency_of(const ConeSettings& s) {
+void allreduce_sum(std::vector<double>& v, MPI_Comm group) {
+  SPINFLIP_CHECK_MPI(MPI_Allreduce(MPI_IN_PLACE, v.data(), static_cast<int>(v.size()), MPI_DOUBLE, MPI_SUM, group));
+}
+
+/// The spin temperature of every cell at its own redshift (sim/cosmic_dawn.cpp): δT_b is multiplied
+/// by (1 − T_CMB/T_S), and the plane means of T_K, T_S, x_α and x_e are kept.
+void apply_spin_temperature(const ConeSettings& s, const cosmo::Cosmology& c, LightCone& cone,
+                            const fft::SlabField& lin, fft::SlabField& work, const detail::ModeBins& bins,
+                            MPI_Comm group) {
+  const std::size_t nl = s.n_los, rows = cone.local_n0 * s.n_perp;
+  const detail::DawnCells dawn = detail::dawn_cells(s, c, cone.z, lin, work, bins, group);
+  std::vector<double> tk(nl, 0.0), ts(nl, 0.0), xa(nl, 0.0), xe(nl, 0.0);
+  if (s.keep_spin) {
+    cone.spin_K.emplace(cone.local_n0, s.n_perp, nl);
+    cone.gas_K.emplace(cone.local_n0, s.n_perp, nl);
+  }
+  float* tb = cone.delta_tb_mK.data.data();
+  for (std::size_t r = 0; r < rows; ++r)
+    for (std::size_t k = 0; k < nl; ++k) {
+      const std::size_t q = r * nl + k;
+      const double t_gas = dawn.gas_K.data[q], x_e = dawn.x_e.data[q];
+      const detail::CellSpin sp =
+          detail::cell_spin(cone.z[k], t_gas, x_e, dawn.lyman_alpha.data[q], 1.0 + dawn.density.data[q], c);
+      tb[q] *= static_cast<float>(1.0 - c.parameters().T_cmb_K * (1.0 + cone.z[k]) / sp.T_s_K);
+      tk[k] += t_gas;
+      ts[k] += sp.T_s_K;
+      xa[k] += sp.x_alpha;
+      xe[k] += x_e;
+      if (s.keep_spin) {
+        cone.spin_K->data[q] = static_cast<float>(sp.T_s_K);
+        cone.gas_K->data[q] = static_cast<float>(t_gas);
+      }
+    }
+  for (auto* v : {&tk, &ts, &xa, &xe}) {
+    allreduce_sum(*v, group);
+    for (double& x : *v) x /= static_cast<double>(s.n_perp * s.n_perp);
+  }
+  cone.tk_mean_K = std::move(tk);
+  cone.ts_mean_K = std::move(ts);
+  cone.x_alpha_mean = std::move(xa);
+  cone.x_e_mean = std::move(xe);
+}
+
+}  // namespace
+
+detail::Efficiency detail::ionizing_efficiency_of(const ConeSettings& s) {
   detail::Efficiency e;
   e.mass_dependent = s.model == SourceModel::mass_dependent;
   e.zeta = s.ionizing_efficiency;
@@ -269,12 +217,6 @@ detail::Efficiency efficiency_of(const ConeSettings& s) {
   e.m_turn_msun = s.turnover_mass_msun;
   return e;
 }
-
-void allreduce_sum(std::vector<double>& v, MPI_Comm group) {
-  SPINFLIP_CHECK_MPI(MPI_Allreduce(MPI_IN_PLACE, v.data(), static_cast<int>(v.size()), MPI_DOUBLE, MPI_SUM, group));
-}
-
-}  // namespace
 
 LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const rng::EntryKey& key,
                         MPI_Comm group) {
@@ -300,7 +242,7 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
     rate[k] = c.growth_rate(z);
     const double t_cmb0 = c.parameters().T_cmb_K;
     const double spin_factor =
-        s.spin.enabled ? 1.0 - t_cmb0 * (1.0 + z) / s.spin.spin_temperature_K(z, t_cmb0) : 1.0;
+        s.tanh_spin.enabled ? 1.0 - t_cmb0 * (1.0 + z) / s.tanh_spin.spin_temperature_K(z, t_cmb0) : 1.0;
     tb0[k] = cosmo::tb_prefactor_mK(z, c) * spin_factor;
   }
 
@@ -310,6 +252,7 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
   ws.cell_mpc = dx;
   fft::SlabField& lin = field(ws, 0, group);
   detail::draw_linear_density(lin, dx, c, key);
+  if (s.uniform_density) std::fill_n(lin.complex_data(), lin.local_n0() * np * lin.half_n2(), fft::cfloat{0, 0});
   fft::SlabField& work = field(ws, 1, group);
   const std::size_t n0 = lin.local_n0();
   cone.local_start0 = lin.local_start0();
@@ -370,6 +313,9 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
       }
   }
 
+  if (!ws.bins) ws.bins.emplace(lin, dx);
+  if (s.spin.enabled) apply_spin_temperature(s, c, cone, lin, work, *ws.bins, group);
+
   std::vector<double> x_hi_sum(nl, 0.0), tb_sum(nl, 0.0);
   if (s.reionization) {
     // Per cell: ionized at its own redshift or not (δT_b needs no more), and z_ion(x) when the
@@ -386,7 +332,7 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
         z_cell[k] = std::nextafter(z_cell[k], std::numeric_limits<float>::infinity());
     }
     std::vector<float> threshold(nl);
-    const detail::Efficiency eff = efficiency_of(s);
+    const detail::Efficiency eff = detail::ionizing_efficiency_of(s);
 
     // Redshift nodes of the barrier tables span the cone with a small margin.
     const std::size_t nz = 96;
@@ -405,8 +351,7 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
     std::vector<double> smin(nz);
     for (std::size_t t = 0; t < nz; ++t) smin[t] = mv.sigma2(mmin[t]);
 
-    if (!ws.bins) ws.bins.emplace(lin, dx);
-    const ModeBins& bins = *ws.bins;
+    const detail::ModeBins& bins = *ws.bins;
     // The radii whose barrier some cell can reach, and always the last (r_min: its smoothed field
     // also gives the cells' own collapsed fraction below).
     struct Radius {
@@ -431,14 +376,14 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
     }
     // Radii go in pairs of smoothed fields: the transforms are the same, but the Fourier field
     // and the bins are read once per pair. Peak memory: 2 work fields, whatever the number of radii.
-    const std::size_t batch_size = std::min(ModeBins::max_batch, radii.size());
+    const std::size_t batch_size = std::min(detail::ModeBins::max_batch, radii.size());
     std::vector<fft::SlabField*> fields;
     for (std::size_t f = 0; f < batch_size; ++f) fields.push_back(&field(ws, 1 + f, group));
     std::vector<float> gains, one;
     fft::SlabField* cell_scale = nullptr;  // δ0 smoothed on r_min, in real space
     for (std::size_t r0 = 0; r0 < radii.size(); r0 += batch_size) {
       const std::size_t m = std::min(batch_size, radii.size() - r0);
-      double rad[ModeBins::max_batch];
+      double rad[detail::ModeBins::max_batch];
       for (std::size_t i = 0; i < m; ++i) rad[i] = radii[r0 + i].radius;
       bins.smooth(lin, fields.data(), rad, m, gains, one);
       for (std::size_t i = 0; i < m; ++i) fields[i]->inverse();

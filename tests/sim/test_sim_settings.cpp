@@ -71,8 +71,8 @@ TEST(SimSettings, BoxTooShortForBand) {
 }
 
 TEST(SimSettings, NegativeTemperatures) {
-  expect_one_line_naming("[spin_temperature]\nenabled = true\nheating_temperature_K = -10.0\n",
-                         "spin_temperature.heating_temperature_K");
+  expect_one_line_naming("[tanh_spin_approximation]\nenabled = true\nheating_temperature_K = -10.0\n",
+                         "tanh_spin_approximation.heating_temperature_K");
   expect_one_line_naming("[sources]\nmin_virial_temperature_K = -1e4\n", "sources.min_virial_temperature_K");
 }
 

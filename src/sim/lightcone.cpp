@@ -164,6 +164,61 @@ void allreduce_sum(std::vector<double>& v, MPI_Comm group) {
   SPINFLIP_CHECK_MPI(MPI_Allreduce(MPI_IN_PLACE, v.data(), static_cast<int>(v.size()), MPI_DOUBLE, MPI_SUM, group));
 }
 
+/// Photon conservation (docs/lightcone.md): the box's excursion-set ionized fraction as a function of
+/// redshift, Q_es(z) = fraction of cells with z_ion ≥ z (from integer counts, so identical on every
+/// rank), is matched to the source model's photon budget Q(z) = min(1, F̄(z)) (ζ f̄_coll for constant
+/// ζ): a cell at redshift z is flagged ionized when z_ion ≥ z', Q_es(z') = Q(z). The redshift remap
+/// of Park, Greig & Mesinger (2022) applied to the per-cell reionization redshifts.
+void conserve_photons(const LightCone& cone, const core::Array3<float>& z_ion, const detail::Efficiency& eff,
+                      const detail::MassVariance& mv, const ConeSettings& s, const cosmo::Cosmology& c, double z_lo,
+                      double z_hi, std::uint8_t* ionized, MPI_Comm group) {
+  const std::size_t nb = 2048, nl = cone.z.size();
+  const double dz = (z_hi - z_lo) / static_cast<double>(nb);
+  std::vector<std::uint64_t> count(nb + 1, 0);  // bin b: z_ion in [z_lo + b dz, z_lo + (b+1) dz); nb: above
+  std::uint64_t cells = 0;
+  for (float v : z_ion.data) {
+    ++cells;
+    if (!(static_cast<double>(v) >= z_lo)) continue;
+    const auto b = std::min(static_cast<std::size_t>((static_cast<double>(v) - z_lo) / dz), nb);
+    ++count[b];
+  }
+  SPINFLIP_CHECK_MPI(MPI_Allreduce(MPI_IN_PLACE, count.data(), static_cast<int>(count.size()), MPI_UINT64_T, MPI_SUM, group));
+  SPINFLIP_CHECK_MPI(MPI_Allreduce(MPI_IN_PLACE, &cells, 1, MPI_UINT64_T, MPI_SUM, group));
+  // q_es[b] = fraction with z_ion ≥ z_lo + b dz (non-increasing in b).
+  std::vector<double> q_es(nb + 1, 0.0);
+  std::uint64_t above = count[nb];
+  q_es[nb] = static_cast<double>(above) / static_cast<double>(cells);
+  for (std::size_t b = nb; b-- > 0;) {
+    above += count[b];
+    q_es[b] = static_cast<double>(above) / static_cast<double>(cells);
+  }
+  std::vector<float> z_eff(nl);
+  for (std::size_t k = 0; k < nl; ++k) {
+    const double z = cone.z[k], growth = c.growth_factor(z);
+    const double smin = mv.sigma2(detail::min_halo_mass(s.min_virial_temperature_K, z, c));
+    const double target =
+        std::min(1.0, detail::ionizing_yield(eff, mv, detail::delta_collapse / (growth * std::sqrt(2.0 * smin)), 0.0, smin));
+    // The highest z' with Q_es(z') ≥ target (linear within a bin); none: above every z_ion.
+    double zp = std::numeric_limits<double>::infinity();
+    if (target > 0.0 && q_es[0] >= target) {
+      std::size_t b = 0;
+      while (b < nb && q_es[b + 1] >= target) ++b;
+      const double lo = q_es[b], hi = b < nb ? q_es[b + 1] : 0.0;
+      const double t = lo > hi ? std::clamp((lo - target) / (lo - hi), 0.0, 1.0) : 0.0;
+      zp = z_lo + (static_cast<double>(b) + t) * dz;
+    } else if (target > 0.0) {
+      zp = z_lo;  // the budget asks for more than the box ever ionizes in the tables
+    }
+    z_eff[k] = static_cast<float>(zp);
+  }
+  const std::size_t rows = z_ion.shape[0] * z_ion.shape[1];
+  for (std::size_t r = 0; r < rows; ++r) {
+    const float* zi = z_ion.data.data() + r * nl;
+    std::uint8_t* f = ionized + r * nl;
+    for (std::size_t k = 0; k < nl; ++k) f[k] = zi[k] >= z_eff[k] ? std::uint8_t{1} : std::uint8_t{0};
+  }
+}
+
 /// The spin temperature of every cell at its own redshift (sim/cosmic_dawn.cpp): δT_b is multiplied
 /// by (1 − T_CMB/T_S), and the plane means of T_K, T_S, x_α and x_e are kept.
 void apply_spin_temperature(const ConeSettings& s, const cosmo::Cosmology& c, LightCone& cone,
@@ -323,7 +378,9 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
     ws.ionized.assign(n0 * np * nl, 0);
     std::uint8_t* ionized = ws.ionized.data();
     core::Array3<float> z_ion;
-    if (s.keep_z_ion) z_ion = core::Array3<float>(n0, np, nl, -std::numeric_limits<float>::infinity());
+    // Photon conservation reads the whole box's z_ion (below), so it needs the field.
+    const bool need_z_ion = s.keep_z_ion || s.photon_conservation;
+    if (need_z_ion) z_ion = core::Array3<float>(n0, np, nl, -std::numeric_limits<float>::infinity());
     // The redshift each LOS cell is compared at: the smallest float ≥ z_k (z_ion is a float).
     std::vector<float> z_cell(nl);
     for (std::size_t k = 0; k < nl; ++k) {
@@ -336,7 +393,10 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
 
     // Redshift nodes of the barrier tables span the cone with a small margin.
     const std::size_t nz = 96;
-    const double z_lo = cone.z.front() - 0.01, z_hi = cone.z.back() + 0.01;
+    // With photon conservation a cell may be compared at a lower redshift than its own: the
+    // tables then reach down to (1+z) × 0.8 (an excursion set lags its photon budget by ≲ 10 %).
+    const double z_lo = s.photon_conservation ? std::max(0.5, 0.8 * (1.0 + cone.z.front()) - 1.0) : cone.z.front() - 0.01;
+    const double z_hi = cone.z.back() + 0.01;
     std::vector<double> zn(nz), dn(nz), mmin(nz);
     for (std::size_t t = 0; t < nz; ++t) {
       zn[t] = z_lo + (z_hi - z_lo) * static_cast<double>(t) / static_cast<double>(nz - 1);
@@ -394,15 +454,18 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
         for (std::size_t k = 0; k < nl; ++k) threshold[k] = threshold_for(look, z_cell[k]);
         const std::size_t pad = fields[f]->padded_n2();
         const float* d = fields[f]->real_data();
-        for (std::size_t row = 0; row < n0 * np; ++row)
-          flag_ionized(d + row * pad, threshold.data(), ionized + row * nl, nl);
-        if (s.keep_z_ion)  // one field at a time: its 16 kB table stays in L1 for the gathers
+        if (!s.photon_conservation)
+          for (std::size_t row = 0; row < n0 * np; ++row)
+            flag_ionized(d + row * pad, threshold.data(), ionized + row * nl, nl);
+        if (need_z_ion)  // one field at a time: its 16 kB table stays in L1 for the gathers
           for (std::size_t row = 0; row < n0 * np; ++row)
             raise_z_ion(d + row * pad, z_ion.data.data() + row * nl, nl, look.table, look.n_table, look.d0,
                         look.inv_dd, look.lowest);
       }
       cell_scale = fields[m - 1];
     }
+    if (s.photon_conservation)
+      conserve_photons(cone, z_ion, eff, mv, s, c, z_lo, z_hi, ionized, group);
     fft::SlabField& work_cell = *cell_scale;
     // `work_cell` holds δ0 smoothed on the cell scale (the last radius is r_min).
     const double s_cell = mv.sigma2(c.mass_of_radius(r_min));

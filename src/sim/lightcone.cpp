@@ -368,7 +368,7 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
       }
   }
 
-  if (!ws.bins) ws.bins.emplace(lin, dx);
+  if (!ws.bins && (s.reionization || s.spin.enabled)) ws.bins.emplace(lin, dx);
   if (s.spin.enabled) apply_spin_temperature(s, c, cone, lin, work, *ws.bins, group);
 
   std::vector<double> x_hi_sum(nl, 0.0), tb_sum(nl, 0.0);

@@ -103,7 +103,7 @@ def dawn_panel(ax, z, x_hi, tb, dawn):
     ax.semilogy(z, np.maximum(x_hi, 1e-4), color="C0", ls="-.", label="x_HI")
     ax.set_xlabel("redshift")
     ax.set_ylabel("K  (x_α, x_HI: plain number)")
-    ax.legend(loc="upper left", fontsize=8, ncol=5)
+    ax.legend(loc="lower left", fontsize=8, ncol=5)
     twin = ax.twinx()
     twin.plot(z, tb, color="C3")
     twin.axhline(0.0, color="C3", lw=0.5)

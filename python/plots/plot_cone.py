@@ -4,6 +4,8 @@ usage: plot_cone.py CONE.h5 OUT.png
 Rows: the clean cone and each observed scenario in the file. Columns: a
 transverse slice at the middle of the band and a line-of-sight cut (observed
 frequency on the x axis). A last row shows the histories x_HI(z) and mean δT_b(z),
+with the spin-temperature model a row above it the cosmic-dawn history (T_K, T_S, T_CMB,
+x_α, and again x_HI and mean δT_b),
 and, when the file holds uv coverage (/uv/<scenario>), the observing time per uv
 cell. Called by `spinflip cone --preview`; runnable by hand the same way.
 """
@@ -28,6 +30,8 @@ def main(src, dst):
         cell = float(f.attrs["cell_mpc"])
         x_hi = f["history/x_hi"][()]
         tb = f["history/mean_tb_mK"][()]
+        dawn = {k: f["history"][k][()] for k in ("mean_tk_K", "mean_ts_K", "mean_x_alpha")} \
+            if "mean_ts_K" in f["history"] else None
         uv = {name: f["uv"][name][()] for name in f["uv"]} if "uv" in f else {}
         uv_freq = float(f["uv"].attrs["freq_MHz"]) if "uv" in f else None
         point = int(f.attrs["point"])
@@ -35,7 +39,7 @@ def main(src, dst):
     n_perp, _, n_los = cubes[0][1].shape
     mid = n_los // 2
     width = n_perp * cell
-    rows = len(cubes) + 1
+    rows = len(cubes) + 1 + (dawn is not None)
     fig = plt.figure(figsize=(15, 3.3 * rows))
     grid = fig.add_gridspec(rows, 2, width_ratios=[1, 3.2])
     for r, (name, cube) in enumerate(cubes):
@@ -60,6 +64,8 @@ def main(src, dst):
                                                    lambda zz: 1420.405751768 / (1 + zz)))
         top.set_xlabel("redshift")
         fig.colorbar(im, ax=ax, label="δT_b [mK]", fraction=0.02)
+    if dawn is not None:
+        dawn_panel(fig.add_subplot(grid[rows - 2, :]), z, x_hi, tb, dawn)
     hist = fig.add_subplot(grid[rows - 1, 1])
     hist.plot(z, x_hi, color="C0")
     hist.set_xlabel("redshift")
@@ -86,6 +92,23 @@ def main(src, dst):
     fig.suptitle(f"spinflip cone: point {point}, realisation {real}")
     fig.tight_layout()
     fig.savefig(dst, dpi=110)
+
+
+def dawn_panel(ax, z, x_hi, tb, dawn):
+    """Cosmic-dawn history: temperatures (log), x_α, x_HI and mean δT_b against redshift."""
+    ax.semilogy(z, dawn["mean_tk_K"], color="C1", label="T_K")
+    ax.semilogy(z, dawn["mean_ts_K"], color="C2", label="T_S")
+    ax.semilogy(z, 2.7255 * (1 + z), color="0.5", ls="--", label="T_CMB")
+    ax.semilogy(z, np.maximum(dawn["mean_x_alpha"], 1e-4), color="C4", ls=":", label="x_α")
+    ax.semilogy(z, np.maximum(x_hi, 1e-4), color="C0", ls="-.", label="x_HI")
+    ax.set_xlabel("redshift")
+    ax.set_ylabel("K  (x_α, x_HI: plain number)")
+    ax.legend(loc="lower left", fontsize=8, ncol=5)
+    twin = ax.twinx()
+    twin.plot(z, tb, color="C3")
+    twin.axhline(0.0, color="C3", lw=0.5)
+    twin.set_ylabel("mean δT_b [mK]", color="C3")
+    ax.set_title("cosmic-dawn history of this cone (plane means)", fontsize=9)
 
 
 if __name__ == "__main__":

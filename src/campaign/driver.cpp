@@ -538,6 +538,8 @@ class Worker {
     agreed([&] { stats::check_finite(clean.data.data(), clean.size(), "light cone δT_b"); });
     result.x_hi = cone.x_hi_mean;
     result.mean_tb_mK = cone.tb_mean_mK;
+    result.mean_tk_K = cone.tk_mean_K;
+    result.mean_ts_K = cone.ts_mean_K;
     cone = sim::LightCone{};  // the slab is no longer needed
     lap(times.generator);
 

@@ -10,6 +10,7 @@
 #include "cosmo/cosmology.hpp"
 #endif
 #ifdef SPINFLIP_HAVE_SIM
+#include "sim/cosmic_dawn.hpp"
 #include "sim/lightcone.hpp"
 #endif
 #ifdef SPINFLIP_HAVE_INSTRUMENT
@@ -87,8 +88,13 @@ MemoryEstimate estimate_memory(const core::Config& cfg, std::size_t chunk_cells,
   // ghost planes, a few per side on rank groups, are not counted).
   if (cfg.boolean("cone.zeldovich_displacement")) work_fields = 3;
   double storage = (1 + work_fields) * padded_slab;
-  if (reionization) storage += slab_rows * np * nl + slab_rows * np * half * 2.0;
+  const bool spin = cfg.boolean("spin_temperature.enabled");
+  if (reionization) storage += slab_rows * np * nl;
+  if (reionization || spin) storage += slab_rows * np * half * 2.0;  // |k| bins
   m.generator = storage + slab + (reionization ? 3 * 65536 * float_bytes : 0.0);
+  // Spin temperature (sim/cosmic_dawn.cpp): T_K, x_e, J_α, δ and the heating and ionization sums
+  // at two redshift nodes, 8 floats per cell of the slab, and the shell window's gains.
+  if (spin) m.generator += 8 * slab + 3 * 65536 * float_bytes;
   m.generator_kept = m.group_size == 1 ? storage : 0.0;
 
 #ifdef SPINFLIP_HAVE_INSTRUMENT
@@ -260,6 +266,23 @@ PlanReport plan(const Campaign& c, const PlanOptions& options) {
         fmt(geo.cell_mpc) + " Mpc; z " + fmt(geo.z.front(), 4) + "–" + fmt(geo.z.back(), 4) + ", ν " +
         fmt(geo.freq_MHz.back(), 5) + "–" + fmt(geo.freq_MHz.front(), 5) + " MHz; channel width " +
         fmt(chan_min * 1e3, 4) + "–" + fmt(chan_max * 1e3, 4) + " kHz");
+
+    {  // FFTs of one cone (bench_sim's reference counts the same): the initial conditions' forward
+       // transform, the density and velocity inverses, one per excursion-set radius and, with the
+       // spin temperature, the first shell once and the others at every redshift node (an upper
+       // bound: shells whose sources have not switched on yet are skipped).
+      const sim::ConeSettings s = sim::settings_from(fid_cfg);
+      std::size_t n = 1 + (s.zeldovich_displacement ? 3 : 1) + (s.velocity_gradient ? 1 : 0) + (s.reionization ? s.n_radii : 0);
+      std::string dawn;
+      if (s.spin.enabled) {
+        const std::size_t nodes = sim::detail::dawn_redshift_nodes(s, geo.z.front()).size() - 1;
+        const std::size_t shells = nodes * (s.spin.n_shells - 1) + 1;
+        n += shells;
+        dawn = " (" + std::to_string(shells) + " for the spin temperature: " + std::to_string(nodes) +
+               " redshift steps × " + std::to_string(s.spin.n_shells - 1) + " shells + 1)";
+      }
+      say("transforms per cone: at most " + std::to_string(n) + dawn);
+    }
 
     const double cadence = cfg.real("slices.cadence_MHz"), width = cfg.real("slices.width_MHz");
     if (cadence < chan_max)

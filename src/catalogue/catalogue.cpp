@@ -217,7 +217,7 @@ struct Catalogue::Impl {
   int rank = 0;
   LockFile lock;
   Handle file, dxpl;
-  Handle status, error, wall_time, rank_of, x_hi, mean_tb, source_sha256;
+  Handle status, error, wall_time, rank_of, x_hi, mean_tb, mean_tk, mean_ts, source_sha256;
   std::vector<std::vector<KernelSets>> stats;  // [scenario][kernel]
   hsize_t n_entries = 0, n_z = 0;
   bool closed = false;
@@ -230,7 +230,8 @@ struct Catalogue::Impl {
       // that never come. The file stays valid (nothing but raw data changed).
       for (auto& s : stats)
         for (auto& k : s) k.values.release();
-      for (Handle* h : {&status, &error, &wall_time, &rank_of, &x_hi, &mean_tb, &source_sha256, &file}) h->release();
+      for (Handle* h : {&status, &error, &wall_time, &rank_of, &x_hi, &mean_tb, &mean_tk, &mean_ts, &source_sha256, &file})
+        h->release();
     } else {
       try {
         close_all();
@@ -243,7 +244,7 @@ struct Catalogue::Impl {
   void close_all() {
     for (auto& s : stats)
       for (auto& k : s) k.values.close();
-    for (Handle* h : {&status, &error, &wall_time, &rank_of, &x_hi, &mean_tb, &source_sha256}) h->close();
+    for (Handle* h : {&status, &error, &wall_time, &rank_of, &x_hi, &mean_tb, &mean_tk, &mean_ts, &source_sha256}) h->close();
     dxpl.close();
     file.close();
     closed = true;
@@ -390,6 +391,9 @@ Catalogue Catalogue::create(const fs::path& path, const Layout& L, MPI_Comm comm
       const double nan = std::numeric_limits<double>::quiet_NaN();
       c.dataset(h, "x_hi", H5T_NATIVE_DOUBLE, {ne, nz}, &nan);
       c.dataset(h, "mean_tb_mK", H5T_NATIVE_DOUBLE, {ne, nz}, &nan);
+      // Plane means of the gas and spin temperatures (NaN where the cone has no spin-temperature model).
+      c.dataset(h, "mean_tk_K", H5T_NATIVE_DOUBLE, {ne, nz}, &nan);
+      c.dataset(h, "mean_ts_K", H5T_NATIVE_DOUBLE, {ne, nz}, &nan);
     }
     {
       Handle stats = c.group(file, "stats");
@@ -478,6 +482,8 @@ Catalogue Catalogue::open(const fs::path& path, const Layout& L, MPI_Comm comm) 
     Handle h = open_group(impl->file, "cones/history");
     impl->x_hi = open_dataset(h, "x_hi");
     impl->mean_tb = open_dataset(h, "mean_tb_mK");
+    if (H5Lexists(h, "mean_tk_K", H5P_DEFAULT) > 0) impl->mean_tk = open_dataset(h, "mean_tk_K");
+    if (H5Lexists(h, "mean_ts_K", H5P_DEFAULT) > 0) impl->mean_ts = open_dataset(h, "mean_ts_K");
   }
   impl->n_entries = h5::dims(impl->status).at(0);
   impl->n_z = h5::dims(impl->x_hi).at(1);
@@ -534,6 +540,8 @@ void Catalogue::write_entry(std::size_t entry, const EntryResult& r) {
   }
   m.write_row(m.x_hi, H5T_NATIVE_DOUBLE, entry, r.x_hi.data());
   m.write_row(m.mean_tb, H5T_NATIVE_DOUBLE, entry, r.mean_tb_mK.data());
+  if (r.mean_tk_K.size() == m.n_z && m.mean_tk) m.write_row(m.mean_tk, H5T_NATIVE_DOUBLE, entry, r.mean_tk_K.data());
+  if (r.mean_ts_K.size() == m.n_z && m.mean_ts) m.write_row(m.mean_ts, H5T_NATIVE_DOUBLE, entry, r.mean_ts_K.data());
   for (std::size_t s = 0; s < m.stats.size(); ++s)
     for (std::size_t k = 0; k < m.stats[s].size(); ++k)
       m.write_row(m.stats[s][k].values, H5T_NATIVE_DOUBLE, entry, r.values[s][k].data());

@@ -83,6 +83,7 @@ struct Layout {
 /// The rows of one finished entry.
 struct EntryResult {
   std::vector<double> x_hi, mean_tb_mK;                  // one per history z
+  std::vector<double> mean_tk_K, mean_ts_K;              // one per history z, or empty (no spin-temperature model)
   std::vector<std::vector<std::vector<double>>> values;  // [scenario][kernel]: n_units × n_coeff, C order
   double wall_time_s = 0;
   std::int32_t rank = 0;

@@ -56,8 +56,8 @@ int run_cone(const ConeArgs& a) {
   if (a.realisation < 0)
     throw InputError("--realisation " + std::to_string(a.realisation) + ": allowed 0 or more");
   for (const auto& f : a.fields)
-    if (f != "density" && f != "x_hi" && f != "z_ion")
-      throw InputError("--fields " + f + ": allowed density, x_hi, z_ion");
+    if (f != "density" && f != "x_hi" && f != "z_ion" && f != "spin")
+      throw InputError("--fields " + f + ": allowed density, x_hi, z_ion, spin");
   const core::Config cfg = c.config_for_point(static_cast<std::size_t>(a.point));
   for (const auto& s : a.scenarios) {
     const auto names = cfg.table_names("scenarios");
@@ -76,6 +76,7 @@ int run_cone(const ConeArgs& a) {
   settings.keep_density = wants("density");
   settings.keep_x_hi = wants("x_hi");
   settings.keep_z_ion = wants("z_ion");
+  settings.keep_spin = wants("spin");
   const cosmo::Cosmology cosmology(cosmo::parameters_from(cfg));
   // The generator's plans from one wisdom on every rank, as `spinflip run` makes them
   // (seeded from the user's wisdom cache, so a cone matches its catalogue entry).
@@ -91,6 +92,8 @@ int run_cone(const ConeArgs& a) {
   if (cone.density) extra.emplace_back("density", sim::allgather_field(cone, *cone.density, MPI_COMM_WORLD));
   if (cone.x_hi) extra.emplace_back("x_hi", sim::allgather_field(cone, *cone.x_hi, MPI_COMM_WORLD));
   if (cone.z_ion) extra.emplace_back("z_ion", sim::allgather_field(cone, *cone.z_ion, MPI_COMM_WORLD));
+  if (cone.spin_K) extra.emplace_back("spin_temperature_K", sim::allgather_field(cone, *cone.spin_K, MPI_COMM_WORLD));
+  if (cone.gas_K) extra.emplace_back("gas_temperature_K", sim::allgather_field(cone, *cone.gas_K, MPI_COMM_WORLD));
   if (world_rank() != 0) return 0;
   fft::set_wisdom_only(false);  // rank 0 alone applies the scenarios: it may measure their plans
 
@@ -112,6 +115,12 @@ int run_cone(const ConeArgs& a) {
     h5::Handle hist = h5::group(SPINFLIP_H5_ID(H5Gcreate2(file, "history", H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT)));
     write_axis(hist, "x_hi", cone.x_hi_mean);
     write_axis(hist, "mean_tb_mK", cone.tb_mean_mK);
+    if (!cone.ts_mean_K.empty()) {  // the spin-temperature model's plane means
+      write_axis(hist, "mean_tk_K", cone.tk_mean_K);
+      write_axis(hist, "mean_ts_K", cone.ts_mean_K);
+      write_axis(hist, "mean_x_alpha", cone.x_alpha_mean);
+      write_axis(hist, "mean_x_e", cone.x_e_mean);
+    }
   }
   for (const auto& [name, field] : extra) write_cube(file, name, field);
   if (!a.scenarios.empty()) {
@@ -163,7 +172,7 @@ RegisterVerb cone_verb("cone", "one light cone of a campaign (point, realisation
                          sub.add_option("--realisation", a->realisation, "realisation index (seed)")
                              ->capture_default_str();
                          sub.add_option("-o,--output", a->output, "output HDF5 file")->required();
-                         sub.add_option("--fields", a->fields, "also write: density, x_hi, z_ion")->delimiter(',');
+                         sub.add_option("--fields", a->fields, "also write: density, x_hi, z_ion, spin (T_S and T_K)")->delimiter(',');
                          sub.add_option("--scenario", a->scenarios,
                                         "also write the cone as this scenario observes it (repeatable)");
                          sub.add_option("--preview", a->preview,

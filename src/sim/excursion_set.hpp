@@ -8,6 +8,7 @@
 #include <vector>
 
 namespace spinflip::cosmo { class Cosmology; }
+namespace spinflip::sim { struct ConeSettings; }
 
 namespace spinflip::sim::detail {
 
@@ -37,6 +38,9 @@ struct Efficiency {
          m_turn_msun = 5e8;
   double operator()(double m_msun) const;
 };
+
+/// The ionizing efficiency of a cone's source model (sources.* keys).
+Efficiency ionizing_efficiency_of(const ConeSettings& s);
 
 /// Ionizing yield of a region: F = ∫ ζ(M) (dF_coll/dM)(M | δ_R, R) dM over M_min..M_R with the
 /// EPS conditional mass function. Written with u = B/√(2(σ²(M)−σ²_R)), B = δ_c/D(z) − δ_R0,

@@ -26,6 +26,8 @@
 #include "fft/planning.hpp"
 #include "sim/excursion_set.hpp"
 #include "sim/initial_conditions.hpp"
+#include "sim/cosmic_dawn.hpp"
+#include "sim/mode_bins.hpp"
 #include "sim/zeldovich.hpp"
 
 namespace spinflip::sim {
@@ -54,105 +56,6 @@ void filter_into(const fft::SlabField& src, fft::SlabField& dst, double cell_mpc
     }
   }
 }
-
-/// Top-hat window in Fourier space (common practice), from sin x and cos x.
-double top_hat(double x, double sin_x, double cos_x) {
-  return x < 1e-3 ? 1.0 - x * x / 10.0 : 3.0 * (sin_x - x * cos_x) / (x * x * x);
-}
-
-/// |k| of every local mode rounded to one of 65536 bins (2 bytes per mode): a radius's window is
-/// then a table of 65536 gains, and smoothing is a gather and a multiply per mode. The bin width
-/// is k_max/65535, so kR is off by at most k_max R/131070 (≤ 1e-3 for R ≤ 40 cells).
-struct ModeBins {
-  static constexpr std::size_t n_bins = 65536;
-  double dk = 1;
-  std::vector<std::uint16_t> bin;
-  ModeBins(const fft::SlabField& f, double cell_mpc) {
-    const auto& n = f.global_shape();
-    const double pi = std::numbers::pi;
-    const double k_top = std::sqrt(3.0) * pi / cell_mpc * 1.0001;
-    dk = k_top / static_cast<double>(n_bins - 1);
-    const std::size_t half = f.half_n2();
-    std::vector<double> kz2(half);
-    for (std::size_t kh = 0; kh < half; ++kh) {
-      const double k2 = 2.0 * pi * static_cast<double>(kh) / (static_cast<double>(n[2]) * cell_mpc);
-      kz2[kh] = k2 * k2;
-    }
-    bin.resize(f.local_n0() * n[1] * half);
-    const double inv_dk = 1.0 / dk;
-    for (std::size_t i = 0; i < f.local_n0(); ++i) {
-      const double k0 = detail::wavenumber(f.local_start0() + i, n[0], cell_mpc);
-      for (std::size_t j = 0; j < n[1]; ++j) {
-        const double k1 = detail::wavenumber(j, n[1], cell_mpc);
-        const double kp2 = k0 * k0 + k1 * k1;
-        std::uint16_t* b = bin.data() + (i * n[1] + j) * half;
-        for (std::size_t kh = 0; kh < half; ++kh)
-          b[kh] = static_cast<std::uint16_t>(static_cast<std::int32_t>(std::sqrt(kp2 + kz2[kh]) * inv_dk + 0.5));
-      }
-    }
-  }
-  /// The window's gain per bin: sin and cos of b·dk·R by rotation (one exact anchor every 512
-  /// bins keeps the recurrence's rounding below 1e-13).
-  void window(double radius, std::vector<float>& gain) const {
-    gain.resize(n_bins);
-    const double step = dk * radius;
-    const double cs = std::cos(step), sn = std::sin(step);
-    double s = 0, c = 1;
-    for (std::size_t b = 0; b < n_bins; ++b) {
-      const double x = static_cast<double>(b) * step;
-      if (b % 512 == 0) {
-        s = std::sin(x);
-        c = std::cos(x);
-      }
-      gain[b] = static_cast<float>(top_hat(x, s, c));
-      const double s1 = s * cs + c * sn;
-      c = c * cs - s * sn;
-      s = s1;
-    }
-  }
-  /// dst[i] = W(|k| R_i) src over the local modes for the radii of one batch (at most
-  /// max_batch), reading src and the bins once. The gains are interleaved by bin so that one
-  /// mode's gains share a cache line. The outputs are streamed past the caches (each is 4 bytes
-  /// per cell, read next by its transform, so caching its lines first would only add traffic).
-  static constexpr std::size_t max_batch = 2;  // 4 would save ~0.5 ms per radius for 8 more B/cell
-  void smooth(const fft::SlabField& src, fft::SlabField* const* dst, const double* radius, std::size_t m,
-              std::vector<float>& gains, std::vector<float>& one) const {
-    gains.resize(n_bins * m);
-    for (std::size_t i = 0; i < m; ++i) {
-      window(radius[i], one);
-      for (std::size_t b = 0; b < n_bins; ++b) gains[b * m + i] = one[b];
-    }
-    switch (m) {
-      case 1: smooth_m<1>(src, dst, gains.data()); break;
-      default: smooth_m<2>(src, dst, gains.data()); break;
-    }
-  }
-  template <std::size_t M>
-  void smooth_m(const fft::SlabField& src, fft::SlabField* const* dst, const float* gains) const {
-    const std::uint16_t* bq = bin.data();
-    const float* a = reinterpret_cast<const float*>(src.complex_data());
-    float* out[M];
-    for (std::size_t i = 0; i < M; ++i) out[i] = reinterpret_cast<float*>(dst[i]->complex_data());
-    const std::size_t n = bin.size();
-    std::size_t q = 0;
-#if defined(__SSE2__)
-    for (; q + 2 <= n; q += 2) {
-      const __m128 v = _mm_load_ps(a + 2 * q);
-      const float* g0 = gains + std::size_t{bq[q]} * M;
-      const float* g1 = gains + std::size_t{bq[q + 1]} * M;
-      for (std::size_t i = 0; i < M; ++i)
-        _mm_stream_ps(out[i] + 2 * q, _mm_mul_ps(v, _mm_set_ps(g1[i], g1[i], g0[i], g0[i])));
-    }
-    _mm_sfence();
-#endif
-    for (; q < n; ++q)
-      for (std::size_t i = 0; i < M; ++i) {
-        const float g = gains[std::size_t{bq[q]} * M + i];
-        out[i][2 * q] = a[2 * q] * g;
-        out[i][2 * q + 1] = a[2 * q + 1] * g;
-      }
-  }
-};
 
 /// Z_R(δ): the barrier's inverse read from its uniform-δ table by linear interpolation (−inf
 /// below the lowest node, NaN → −inf). One definition for the per-cell passes and the
@@ -231,7 +134,7 @@ struct WorkStorage {
   double cell_mpc = 0;
   std::size_t plan_epoch = 0;         // the planner's epoch its fields were planned in
   std::deque<fft::SlabField> fields;  // [0]: the z = 0 Fourier density; [1..]: work fields (stable references)
-  std::optional<ModeBins> bins;
+  std::optional<detail::ModeBins> bins;
   std::vector<std::uint8_t> ionized;  // 1: ionized at the cell's own redshift by some radius
 };
 
@@ -261,7 +164,107 @@ fft::SlabField& field(WorkStorage& w, std::size_t i, MPI_Comm group) {
   return w.fields[i];
 }
 
-detail::Efficiency efficiency_of(const ConeSettings& s) {
+void allreduce_sum(std::vector<double>& v, MPI_Comm group) {
+  SPINFLIP_CHECK_MPI(MPI_Allreduce(MPI_IN_PLACE, v.data(), static_cast<int>(v.size()), MPI_DOUBLE, MPI_SUM, group));
+}
+
+/// Photon conservation (docs/lightcone.md): the box's excursion-set ionized fraction as a function of
+/// redshift, Q_es(z) = fraction of cells with z_ion ≥ z (from integer counts, so identical on every
+/// rank), is matched to the source model's photon budget Q(z) = min(1, F̄(z)) (ζ f̄_coll for constant
+/// ζ): a cell at redshift z is flagged ionized when z_ion ≥ z', Q_es(z') = Q(z). The redshift remap
+/// of Park, Greig & Mesinger (2022) applied to the per-cell reionization redshifts.
+void conserve_photons(const LightCone& cone, const core::Array3<float>& z_ion, const detail::Efficiency& eff,
+                      const detail::MassVariance& mv, const ConeSettings& s, const cosmo::Cosmology& c, double z_lo,
+                      double z_hi, std::uint8_t* ionized, MPI_Comm group) {
+  const std::size_t nb = 2048, nl = cone.z.size();
+  const double dz = (z_hi - z_lo) / static_cast<double>(nb);
+  std::vector<std::uint64_t> count(nb + 1, 0);  // bin b: z_ion in [z_lo + b dz, z_lo + (b+1) dz); nb: above
+  std::uint64_t cells = 0;
+  for (float v : z_ion.data) {
+    ++cells;
+    if (!(static_cast<double>(v) >= z_lo)) continue;
+    const auto b = std::min(static_cast<std::size_t>((static_cast<double>(v) - z_lo) / dz), nb);
+    ++count[b];
+  }
+  SPINFLIP_CHECK_MPI(MPI_Allreduce(MPI_IN_PLACE, count.data(), static_cast<int>(count.size()), MPI_UINT64_T, MPI_SUM, group));
+  SPINFLIP_CHECK_MPI(MPI_Allreduce(MPI_IN_PLACE, &cells, 1, MPI_UINT64_T, MPI_SUM, group));
+  // q_es[b] = fraction with z_ion ≥ z_lo + b dz (non-increasing in b).
+  std::vector<double> q_es(nb + 1, 0.0);
+  std::uint64_t above = count[nb];
+  q_es[nb] = static_cast<double>(above) / static_cast<double>(cells);
+  for (std::size_t b = nb; b-- > 0;) {
+    above += count[b];
+    q_es[b] = static_cast<double>(above) / static_cast<double>(cells);
+  }
+  std::vector<float> z_eff(nl);
+  for (std::size_t k = 0; k < nl; ++k) {
+    const double z = cone.z[k], growth = c.growth_factor(z);
+    const double smin = mv.sigma2(detail::min_halo_mass(s.min_virial_temperature_K, z, c));
+    const double target =
+        std::min(1.0, detail::ionizing_yield(eff, mv, detail::delta_collapse / (growth * std::sqrt(2.0 * smin)), 0.0, smin));
+    // The highest z' with Q_es(z') ≥ target (linear within a bin); none: above every z_ion.
+    double zp = std::numeric_limits<double>::infinity();
+    if (target > 0.0 && q_es[0] >= target) {
+      std::size_t b = 0;
+      while (b < nb && q_es[b + 1] >= target) ++b;
+      const double lo = q_es[b], hi = b < nb ? q_es[b + 1] : 0.0;
+      const double t = lo > hi ? std::clamp((lo - target) / (lo - hi), 0.0, 1.0) : 0.0;
+      zp = z_lo + (static_cast<double>(b) + t) * dz;
+    } else if (target > 0.0) {
+      zp = z_lo;  // the budget asks for more than the box ever ionizes in the tables
+    }
+    z_eff[k] = static_cast<float>(zp);
+  }
+  const std::size_t rows = z_ion.shape[0] * z_ion.shape[1];
+  for (std::size_t r = 0; r < rows; ++r) {
+    const float* zi = z_ion.data.data() + r * nl;
+    std::uint8_t* f = ionized + r * nl;
+    for (std::size_t k = 0; k < nl; ++k) f[k] = zi[k] >= z_eff[k] ? std::uint8_t{1} : std::uint8_t{0};
+  }
+}
+
+/// The spin temperature of every cell at its own redshift (sim/cosmic_dawn.cpp): δT_b is multiplied
+/// by (1 − T_CMB/T_S), and the plane means of T_K, T_S, x_α and x_e are kept.
+void apply_spin_temperature(const ConeSettings& s, const cosmo::Cosmology& c, LightCone& cone,
+                            const fft::SlabField& lin, fft::SlabField& work, const detail::ModeBins& bins,
+                            MPI_Comm group) {
+  const std::size_t nl = s.n_los, rows = cone.local_n0 * s.n_perp;
+  const detail::DawnCells dawn = detail::dawn_cells(s, c, cone.z, lin, work, bins, group);
+  std::vector<double> tk(nl, 0.0), ts(nl, 0.0), xa(nl, 0.0), xe(nl, 0.0);
+  if (s.keep_spin) {
+    cone.spin_K.emplace(cone.local_n0, s.n_perp, nl);
+    cone.gas_K.emplace(cone.local_n0, s.n_perp, nl);
+  }
+  float* tb = cone.delta_tb_mK.data.data();
+  for (std::size_t r = 0; r < rows; ++r)
+    for (std::size_t k = 0; k < nl; ++k) {
+      const std::size_t q = r * nl + k;
+      const double t_gas = dawn.gas_K.data[q], x_e = dawn.x_e.data[q];
+      const detail::CellSpin sp =
+          detail::cell_spin(cone.z[k], t_gas, x_e, dawn.lyman_alpha.data[q], 1.0 + dawn.density.data[q], c);
+      tb[q] *= static_cast<float>(1.0 - c.parameters().T_cmb_K * (1.0 + cone.z[k]) / sp.T_s_K);
+      tk[k] += t_gas;
+      ts[k] += sp.T_s_K;
+      xa[k] += sp.x_alpha;
+      xe[k] += x_e;
+      if (s.keep_spin) {
+        cone.spin_K->data[q] = static_cast<float>(sp.T_s_K);
+        cone.gas_K->data[q] = static_cast<float>(t_gas);
+      }
+    }
+  for (auto* v : {&tk, &ts, &xa, &xe}) {
+    allreduce_sum(*v, group);
+    for (double& x : *v) x /= static_cast<double>(s.n_perp * s.n_perp);
+  }
+  cone.tk_mean_K = std::move(tk);
+  cone.ts_mean_K = std::move(ts);
+  cone.x_alpha_mean = std::move(xa);
+  cone.x_e_mean = std::move(xe);
+}
+
+}  // namespace
+
+detail::Efficiency detail::ionizing_efficiency_of(const ConeSettings& s) {
   detail::Efficiency e;
   e.mass_dependent = s.model == SourceModel::mass_dependent;
   e.zeta = s.ionizing_efficiency;
@@ -273,12 +276,6 @@ detail::Efficiency efficiency_of(const ConeSettings& s) {
   e.m_turn_msun = s.turnover_mass_msun;
   return e;
 }
-
-void allreduce_sum(std::vector<double>& v, MPI_Comm group) {
-  SPINFLIP_CHECK_MPI(MPI_Allreduce(MPI_IN_PLACE, v.data(), static_cast<int>(v.size()), MPI_DOUBLE, MPI_SUM, group));
-}
-
-}  // namespace
 
 LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const rng::EntryKey& key,
                         MPI_Comm group) {
@@ -304,7 +301,7 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
     rate[k] = c.growth_rate(z);
     const double t_cmb0 = c.parameters().T_cmb_K;
     const double spin_factor =
-        s.spin.enabled ? 1.0 - t_cmb0 * (1.0 + z) / s.spin.spin_temperature_K(z, t_cmb0) : 1.0;
+        s.tanh_spin.enabled ? 1.0 - t_cmb0 * (1.0 + z) / s.tanh_spin.spin_temperature_K(z, t_cmb0) : 1.0;
     tb0[k] = cosmo::tb_prefactor_mK(z, c) * spin_factor;
   }
 
@@ -314,6 +311,7 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
   ws.cell_mpc = dx;
   fft::SlabField& lin = field(ws, 0, group);
   detail::draw_linear_density(lin, dx, c, key);
+  if (s.uniform_density) std::fill_n(lin.complex_data(), lin.local_n0() * np * lin.half_n2(), fft::cfloat{0, 0});
   fft::SlabField& work = field(ws, 1, group);
   const std::size_t n0 = lin.local_n0();
   cone.local_start0 = lin.local_start0();
@@ -374,6 +372,9 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
       }
   }
 
+  if (!ws.bins && (s.reionization || s.spin.enabled)) ws.bins.emplace(lin, dx);
+  if (s.spin.enabled) apply_spin_temperature(s, c, cone, lin, work, *ws.bins, group);
+
   std::vector<double> x_hi_sum(nl, 0.0), tb_sum(nl, 0.0);
   if (s.reionization) {
     // Per cell: ionized at its own redshift or not (δT_b needs no more), and z_ion(x) when the
@@ -381,7 +382,9 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
     ws.ionized.assign(n0 * np * nl, 0);
     std::uint8_t* ionized = ws.ionized.data();
     core::Array3<float> z_ion;
-    if (s.keep_z_ion) z_ion = core::Array3<float>(n0, np, nl, -std::numeric_limits<float>::infinity());
+    // Photon conservation reads the whole box's z_ion (below), so it needs the field.
+    const bool need_z_ion = s.keep_z_ion || s.photon_conservation;
+    if (need_z_ion) z_ion = core::Array3<float>(n0, np, nl, -std::numeric_limits<float>::infinity());
     // The redshift each LOS cell is compared at: the smallest float ≥ z_k (z_ion is a float).
     std::vector<float> z_cell(nl);
     for (std::size_t k = 0; k < nl; ++k) {
@@ -390,11 +393,14 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
         z_cell[k] = std::nextafter(z_cell[k], std::numeric_limits<float>::infinity());
     }
     std::vector<float> threshold(nl);
-    const detail::Efficiency eff = efficiency_of(s);
+    const detail::Efficiency eff = detail::ionizing_efficiency_of(s);
 
     // Redshift nodes of the barrier tables span the cone with a small margin.
     const std::size_t nz = 96;
-    const double z_lo = cone.z.front() - 0.01, z_hi = cone.z.back() + 0.01;
+    // With photon conservation a cell may be compared at a lower redshift than its own: the
+    // tables then reach down to (1+z) × 0.8 (an excursion set lags its photon budget by ≲ 10 %).
+    const double z_lo = s.photon_conservation ? std::max(0.5, 0.8 * (1.0 + cone.z.front()) - 1.0) : cone.z.front() - 0.01;
+    const double z_hi = cone.z.back() + 0.01;
     std::vector<double> zn(nz), dn(nz), mmin(nz);
     for (std::size_t t = 0; t < nz; ++t) {
       zn[t] = z_lo + (z_hi - z_lo) * static_cast<double>(t) / static_cast<double>(nz - 1);
@@ -409,8 +415,7 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
     std::vector<double> smin(nz);
     for (std::size_t t = 0; t < nz; ++t) smin[t] = mv.sigma2(mmin[t]);
 
-    if (!ws.bins) ws.bins.emplace(lin, dx);
-    const ModeBins& bins = *ws.bins;
+    const detail::ModeBins& bins = *ws.bins;
     // The radii whose barrier some cell can reach, and always the last (r_min: its smoothed field
     // also gives the cells' own collapsed fraction below).
     struct Radius {
@@ -435,14 +440,14 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
     }
     // Radii go in pairs of smoothed fields: the transforms are the same, but the Fourier field
     // and the bins are read once per pair. Peak memory: 2 work fields, whatever the number of radii.
-    const std::size_t batch_size = std::min(ModeBins::max_batch, radii.size());
+    const std::size_t batch_size = std::min(detail::ModeBins::max_batch, radii.size());
     std::vector<fft::SlabField*> fields;
     for (std::size_t f = 0; f < batch_size; ++f) fields.push_back(&field(ws, 1 + f, group));
     std::vector<float> gains, one;
     fft::SlabField* cell_scale = nullptr;  // δ0 smoothed on r_min, in real space
     for (std::size_t r0 = 0; r0 < radii.size(); r0 += batch_size) {
       const std::size_t m = std::min(batch_size, radii.size() - r0);
-      double rad[ModeBins::max_batch];
+      double rad[detail::ModeBins::max_batch];
       for (std::size_t i = 0; i < m; ++i) rad[i] = radii[r0 + i].radius;
       bins.smooth(lin, fields.data(), rad, m, gains, one);
       for (std::size_t i = 0; i < m; ++i) fields[i]->inverse();
@@ -453,15 +458,18 @@ LightCone generate_cone(const ConeSettings& s, const cosmo::Cosmology& c, const 
         for (std::size_t k = 0; k < nl; ++k) threshold[k] = threshold_for(look, z_cell[k]);
         const std::size_t pad = fields[f]->padded_n2();
         const float* d = fields[f]->real_data();
-        for (std::size_t row = 0; row < n0 * np; ++row)
-          flag_ionized(d + row * pad, threshold.data(), ionized + row * nl, nl);
-        if (s.keep_z_ion)  // one field at a time: its 16 kB table stays in L1 for the gathers
+        if (!s.photon_conservation)
+          for (std::size_t row = 0; row < n0 * np; ++row)
+            flag_ionized(d + row * pad, threshold.data(), ionized + row * nl, nl);
+        if (need_z_ion)  // one field at a time: its 16 kB table stays in L1 for the gathers
           for (std::size_t row = 0; row < n0 * np; ++row)
             raise_z_ion(d + row * pad, z_ion.data.data() + row * nl, nl, look.table, look.n_table, look.d0,
                         look.inv_dd, look.lowest);
       }
       cell_scale = fields[m - 1];
     }
+    if (s.photon_conservation)
+      conserve_photons(cone, z_ion, eff, mv, s, c, z_lo, z_hi, ionized, group);
     fft::SlabField& work_cell = *cell_scale;
     // `work_cell` holds δ0 smoothed on the cell scale (the last radius is r_min).
     const double s_cell = mv.sigma2(c.mass_of_radius(r_min));

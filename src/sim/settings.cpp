@@ -1,4 +1,4 @@
-// The [cone], [sources] and [spin_temperature] keys: declared once here.
+// The [cone], [sources], [spin_temperature] and [tanh_spin_approximation] keys: declared once here.
 #include <cmath>
 #include <functional>
 #include <string>
@@ -69,25 +69,64 @@ void declare_keys(core::Schema& s) {
          .min = 1e5, .max = 1e12, .doc = "halo mass below which star formation is exponentially suppressed",
          .can_vary = true});
 
-  s.add_table("spin_temperature", "Optional global spin-temperature history (coupling and heating, tanh steps).");
+  s.add({.path = "sources.photon_conservation", .type = ValueType::boolean, .default_value = false,
+         .doc = "remap the ionization redshifts so that the box's ionized fraction follows the photon budget "
+                "(ζ f_coll, or the mass-dependent yield) at each redshift (Park, Greig & Mesinger 2022 idea; docs)"});
+
+  s.add_table("spin_temperature",
+              "Spin temperature cell by cell: Lyman-α coupling from the Lyman-series background and X-ray heating "
+              "and ionization, from the sources' star formation summed over shells at the retarded redshift.");
   s.add({.path = "spin_temperature.enabled", .type = ValueType::boolean, .default_value = false,
-         .doc = "false: T_S >> T_CMB (emission only)"});
-  s.add({.path = "spin_temperature.coupling_redshift", .type = ValueType::real, .default_value = 17.0,
+         .doc = "false: T_S >> T_CMB (emission only, unless tanh_spin_approximation.enabled)"});
+  s.add({.path = "spin_temperature.xray_luminosity_erg_s_per_msun_yr", .type = ValueType::real,
+         .default_value = 1e40, .unit = "erg/s per Msun/yr", .min = 0.0, .max = 1e45,
+         .doc = "X-ray luminosity per star-formation rate, emitted between the threshold energy and 2 keV",
+         .can_vary = true});
+  s.add({.path = "spin_temperature.xray_threshold_energy_keV", .type = ValueType::real, .default_value = 0.5,
+         .unit = "keV", .min = 0.1, .max = 1.5,
+         .doc = "X-rays below this energy are absorbed inside their galaxies (self-absorption)", .can_vary = true});
+  s.add({.path = "spin_temperature.xray_spectral_index", .type = ValueType::real, .default_value = 1.0, .min = -1.0,
+         .max = 3.0, .doc = "energy index α of the X-ray spectrum, L_E ∝ E^−α (up to 10 keV)", .can_vary = true});
+  s.add({.path = "spin_temperature.lyman_photons_per_stellar_baryon", .type = ValueType::real,
+         .default_value = 9690.0, .min = 0.0, .max = 1e6,
+         .doc = "photons between Lyman-α and the Lyman limit per stellar baryon (spectrum ∝ ν^−0.86)",
+         .can_vary = true});
+  s.add({.path = "spin_temperature.star_fraction", .type = ValueType::real, .default_value = 0.05, .min = 0.0,
+         .max = 1.0, .min_exclusive = true,
+         .doc = "fraction of collapsed baryons in stars, constant source model (the mass-dependent model uses "
+                "sources.star_fraction_at_1e10, its slope and the turnover mass)",
+         .can_vary = true});
+  s.add({.path = "spin_temperature.start_redshift", .type = ValueType::real, .default_value = 35.0, .min = 10.0,
+         .max = 60.0,
+         .doc = "gas temperature and X-ray ionization integrated from here (T_K from adiabatic cooling since "
+                "decoupling at z = 150); must be at or above the cone's far end"});
+  s.add({.path = "spin_temperature.max_step_dlog1pz", .type = ValueType::real, .default_value = 0.02, .min = 0.0,
+         .max = 0.2, .min_exclusive = true, .doc = "largest redshift step, in ln(1+z)"});
+  s.add({.path = "spin_temperature.n_shells", .type = ValueType::integer, .default_value = std::int64_t{12},
+         .min = 2, .max = 64,
+         .doc = "shells of the radiation sums, log-spaced from the cell up to half the transverse box"});
+
+  s.add_table("tanh_spin_approximation",
+              "Approximation: one global spin-temperature history of tanh steps (no fluctuations of T_S); "
+              "[spin_temperature] is the physical model.");
+  s.add({.path = "tanh_spin_approximation.enabled", .type = ValueType::boolean, .default_value = false,
+         .doc = "use the tanh approximation (exclusive with spin_temperature.enabled)"});
+  s.add({.path = "tanh_spin_approximation.coupling_redshift", .type = ValueType::real, .default_value = 17.0,
          .min = 5.0, .max = 40.0, .doc = "redshift where Lyman-alpha coupling is half way", .can_vary = true});
-  s.add({.path = "spin_temperature.coupling_width", .type = ValueType::real, .default_value = 2.0, .min = 0.0,
+  s.add({.path = "tanh_spin_approximation.coupling_width", .type = ValueType::real, .default_value = 2.0, .min = 0.0,
          .max = 20.0, .min_exclusive = true, .doc = "redshift width of the coupling step"});
-  s.add({.path = "spin_temperature.coupling_strength", .type = ValueType::real, .default_value = 30.0, .min = 0.0,
+  s.add({.path = "tanh_spin_approximation.coupling_strength", .type = ValueType::real, .default_value = 30.0, .min = 0.0,
          .max = 1e4, .min_exclusive = true, .doc = "Lyman-alpha coupling coefficient once coupling is complete"});
-  s.add({.path = "spin_temperature.heating_redshift", .type = ValueType::real, .default_value = 11.0,
+  s.add({.path = "tanh_spin_approximation.heating_redshift", .type = ValueType::real, .default_value = 11.0,
          .min = 5.0, .max = 40.0, .doc = "redshift where gas heating is half way", .can_vary = true});
-  s.add({.path = "spin_temperature.heating_width", .type = ValueType::real, .default_value = 1.5, .min = 0.0,
+  s.add({.path = "tanh_spin_approximation.heating_width", .type = ValueType::real, .default_value = 1.5, .min = 0.0,
          .max = 20.0, .min_exclusive = true, .doc = "redshift width of the heating step"});
-  s.add({.path = "spin_temperature.heating_temperature_K", .type = ValueType::real, .default_value = 500.0,
+  s.add({.path = "tanh_spin_approximation.heating_temperature_K", .type = ValueType::real, .default_value = 500.0,
          .unit = "K", .min = 0.0, .max = 1e6, .doc = "gas temperature added by heating once complete",
          .can_vary = true});
 }
 
-double SpinTemperatureHistory::spin_temperature_K(double z, double T_cmb0_K) const {
+double TanhSpinApproximation::spin_temperature_K(double z, double T_cmb0_K) const {
   const double t_cmb = T_cmb0_K * (1.0 + z);
   // Adiabatic cooling after thermal decoupling at z ≈ 150 (common practice): T_K ∝ (1+z)².
   const double t_adiabatic = T_cmb0_K * (1.0 + z) * (1.0 + z) / 151.0;
@@ -120,8 +159,24 @@ void check(const ConeSettings& s, const cosmo::Cosmology& c, const FailFn& fail)
                            " Mpc beyond z_min) lies beyond z = 35, the highest redshift allowed");
   if (s.model == SourceModel::constant && !(s.ionizing_efficiency > 1.0))
     fail("sources.ionizing_efficiency", "must be above 1");
-  if (s.spin.enabled && !(s.spin.heating_temperature_K >= 0.0))
-    fail("spin_temperature.heating_temperature_K", "must not be negative");
+  if (s.tanh_spin.enabled && !(s.tanh_spin.heating_temperature_K >= 0.0))
+    fail("tanh_spin_approximation.heating_temperature_K", "must not be negative");
+  if (s.tanh_spin.enabled && s.spin.enabled)
+    fail("tanh_spin_approximation.enabled", "the approximation and spin_temperature.enabled exclude each other");
+  if (s.spin.enabled) {
+    const double z_far = c.redshift_at_comoving_distance(d_far);
+    if (!(s.spin.start_redshift >= z_far))
+      fail("spin_temperature.start_redshift", "the redshift steps must start at or beyond the cone's far end z = " +
+                                                  std::to_string(z_far) + ", got " +
+                                                  std::to_string(s.spin.start_redshift));
+    if (!(s.spin.xray_luminosity_erg_s_per_msun_yr >= 0.0))
+      fail("spin_temperature.xray_luminosity_erg_s_per_msun_yr", "must not be negative");
+    if (!(s.spin.xray_threshold_energy_keV >= 0.1 && s.spin.xray_threshold_energy_keV <= 1.5))
+      fail("spin_temperature.xray_threshold_energy_keV", "must lie in [0.1, 1.5] keV");
+    if (!(s.spin.lyman_photons_per_stellar_baryon >= 0.0))
+      fail("spin_temperature.lyman_photons_per_stellar_baryon", "must not be negative");
+    if (s.n_perp < 4) fail("cone.n_perp", "the spin-temperature shells need at least 4 cells across");
+  }
   if (!(s.min_virial_temperature_K > 0.0)) fail("sources.min_virial_temperature_K", "must be positive");
 }
 
@@ -156,13 +211,23 @@ ConeSettings settings_from(const core::Config& cfg) {
   s.escape_fraction_at_1e10 = cfg.real("sources.escape_fraction_at_1e10");
   s.escape_fraction_slope = cfg.real("sources.escape_fraction_slope");
   s.turnover_mass_msun = cfg.real("sources.turnover_mass_msun");
+  s.tanh_spin.enabled = cfg.boolean("tanh_spin_approximation.enabled");
+  s.tanh_spin.coupling_redshift = cfg.real("tanh_spin_approximation.coupling_redshift");
+  s.tanh_spin.coupling_width = cfg.real("tanh_spin_approximation.coupling_width");
+  s.tanh_spin.coupling_strength = cfg.real("tanh_spin_approximation.coupling_strength");
+  s.tanh_spin.heating_redshift = cfg.real("tanh_spin_approximation.heating_redshift");
+  s.tanh_spin.heating_width = cfg.real("tanh_spin_approximation.heating_width");
+  s.tanh_spin.heating_temperature_K = cfg.real("tanh_spin_approximation.heating_temperature_K");
+  s.photon_conservation = cfg.boolean("sources.photon_conservation");
   s.spin.enabled = cfg.boolean("spin_temperature.enabled");
-  s.spin.coupling_redshift = cfg.real("spin_temperature.coupling_redshift");
-  s.spin.coupling_width = cfg.real("spin_temperature.coupling_width");
-  s.spin.coupling_strength = cfg.real("spin_temperature.coupling_strength");
-  s.spin.heating_redshift = cfg.real("spin_temperature.heating_redshift");
-  s.spin.heating_width = cfg.real("spin_temperature.heating_width");
-  s.spin.heating_temperature_K = cfg.real("spin_temperature.heating_temperature_K");
+  s.spin.xray_luminosity_erg_s_per_msun_yr = cfg.real("spin_temperature.xray_luminosity_erg_s_per_msun_yr");
+  s.spin.xray_threshold_energy_keV = cfg.real("spin_temperature.xray_threshold_energy_keV");
+  s.spin.xray_spectral_index = cfg.real("spin_temperature.xray_spectral_index");
+  s.spin.lyman_photons_per_stellar_baryon = cfg.real("spin_temperature.lyman_photons_per_stellar_baryon");
+  s.spin.star_fraction = cfg.real("spin_temperature.star_fraction");
+  s.spin.start_redshift = cfg.real("spin_temperature.start_redshift");
+  s.spin.max_step_dlog1pz = cfg.real("spin_temperature.max_step_dlog1pz");
+  s.spin.n_shells = static_cast<std::size_t>(cfg.integer("spin_temperature.n_shells"));
   const cosmo::Cosmology c(cosmo::parameters_from(cfg));
   check(s, c, [&](const std::string& key, const std::string& message) -> void { cfg.fail(key, message); });
   return s;

@@ -294,15 +294,15 @@ TEST(SimCone, SpinTemperatureHistoryGivesAbsorptionAtHighRedshift) {
   s.reionization = false;
   s.velocity_gradient = false;
   const auto bright = sim::generate_cone(s, c, key, MPI_COMM_WORLD);
-  s.spin.enabled = true;
+  s.tanh_spin.enabled = true;
   const auto cone = sim::generate_cone(s, c, key, MPI_COMM_WORLD);
   const double t0 = c.parameters().T_cmb_K;
   for (std::size_t k = 0; k < s.n_los; k += 9) {
     const double z = cone.z[k];
     const double t_cmb = t0 * (1 + z);
     const double t_k = t0 * (1 + z) * (1 + z) / 151.0 +
-                       s.spin.heating_temperature_K * 0.5 * (1 - std::tanh((z - s.spin.heating_redshift) / s.spin.heating_width));
-    const double xa = s.spin.coupling_strength * 0.5 * (1 - std::tanh((z - s.spin.coupling_redshift) / s.spin.coupling_width));
+                       s.tanh_spin.heating_temperature_K * 0.5 * (1 - std::tanh((z - s.tanh_spin.heating_redshift) / s.tanh_spin.heating_width));
+    const double xa = s.tanh_spin.coupling_strength * 0.5 * (1 - std::tanh((z - s.tanh_spin.coupling_redshift) / s.tanh_spin.coupling_width));
     const double ts = (1 + xa) / (1 / t_cmb + xa / t_k);
     EXPECT_NEAR(cone.tb_mean_mK[k], bright.tb_mean_mK[k] * (1 - t_cmb / ts), 1e-4 * std::abs(bright.tb_mean_mK[k]));
     EXPECT_LT(cone.tb_mean_mK[k], 0.0);  // the gas is colder than the CMB: absorption

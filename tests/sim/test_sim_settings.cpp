@@ -71,8 +71,8 @@ TEST(SimSettings, BoxTooShortForBand) {
 }
 
 TEST(SimSettings, NegativeTemperatures) {
-  expect_one_line_naming("[spin_temperature]\nenabled = true\nheating_temperature_K = -10.0\n",
-                         "spin_temperature.heating_temperature_K");
+  expect_one_line_naming("[tanh_spin_approximation]\nenabled = true\nheating_temperature_K = -10.0\n",
+                         "tanh_spin_approximation.heating_temperature_K");
   expect_one_line_naming("[sources]\nmin_virial_temperature_K = -1e4\n", "sources.min_virial_temperature_K");
 }
 
@@ -88,4 +88,23 @@ TEST(SimSettings, CheckSettingsInCode) {
   } catch (const ConfigError& e) {
     EXPECT_NE(std::string(e.what()).find("sources.bubble_radius_max_mpc"), std::string::npos);
   }
+}
+
+// The spin-temperature model's bad values (issue 16): each refused in one line naming the key.
+TEST(SimSettings, SpinTemperatureBadValues) {
+  expect_one_line_naming("[spin_temperature]\nenabled = true\nxray_luminosity_erg_s_per_msun_yr = -1e40\n",
+                         "spin_temperature.xray_luminosity_erg_s_per_msun_yr");
+  expect_one_line_naming("[spin_temperature]\nenabled = true\nxray_threshold_energy_keV = 3.0\n",
+                         "spin_temperature.xray_threshold_energy_keV");
+  expect_one_line_naming("[spin_temperature]\nenabled = true\nxray_threshold_energy_keV = 0.01\n",
+                         "spin_temperature.xray_threshold_energy_keV");
+  // Steps from z = 12 cannot reach a cone whose far end lies at z ≈ 13.
+  expect_one_line_naming("[cone]\nz_min = 10.0\nz_max = 13.0\nn_los = 400\ncell_mpc = 3.0\n"
+                         "[spin_temperature]\nenabled = true\nstart_redshift = 12.0\n",
+                         "spin_temperature.start_redshift");
+  expect_one_line_naming("[spin_temperature]\nenabled = true\nmax_step_dlog1pz = 0.0\n",
+                         "spin_temperature.max_step_dlog1pz");
+  expect_one_line_naming("[spin_temperature]\nenabled = true\n[tanh_spin_approximation]\nenabled = true\n",
+                         "tanh_spin_approximation.enabled");
+  EXPECT_EQ(error_of("[spin_temperature]\nenabled = true\n"), "");
 }

@@ -1,0 +1,128 @@
+"""Draw the data file that `spinflip plot` writes: one panel per coefficient
+(against redshift, observed frequency on the top axis) or per family of
+coefficients (against k or j at one redshift); in each panel one line per entry
+coloured by a parameter, or the fiducial mean with a ±1σ band; scenarios are
+told apart by line style (design) or colour (fiducial).
+
+usage: plot_statistic.py DATA.h5 OUT FORMAT      (FORMAT: png or pdf)
+The picture is drawn to OUT.partial and renamed, so OUT is never half written.
+"""
+import math
+import os
+import sys
+
+import h5py
+import matplotlib
+
+matplotlib.use("Agg")
+import matplotlib.pyplot as plt  # noqa: E402
+import numpy as np  # noqa: E402
+
+NU21_MHZ = 1420.405751768  # rest frequency of the 21-cm line
+STYLES = ["-", "--", ":", "-."]
+
+
+def text(v):
+    return v.decode() if isinstance(v, bytes) else str(v)
+
+
+def frequency_axis(ax):
+    top = ax.secondary_xaxis("top", functions=(lambda z: NU21_MHZ / (1 + np.asarray(z, float)),
+                                               lambda nu: NU21_MHZ / np.asarray(nu, float) - 1))
+    top.set_xlabel("observed frequency [MHz]", fontsize=8)
+    top.tick_params(labelsize=7)
+
+
+def main(src, dst, fmt):
+    with h5py.File(src, "r") as f:
+        a = {k: (text(v) if isinstance(v, (bytes, str)) else v) for k, v in f.attrs.items()}
+        values = f["values"][()]
+        colour = f["colour"][()]
+        panel = f["element_panel"][()]
+        series = [text(s) for s in f["element_series"][()]]
+        x = f["element_x"][()]
+        titles = [text(s) for s in f["panel_title"][()]]
+        xlabels = [text(s) for s in f["panel_xlabel"][()]]
+        ylabels = [text(s) for s in f["panel_ylabel"][()]]
+        xlog = f["panel_xlog"][()]
+    fiducial = a["mode"] == "fiducial"
+    against_z = a["against"] == "z"
+    names = list(dict.fromkeys(series))  # scenarios, in selection order
+    n = len(titles)
+    cols = min(3, n)
+    rows = math.ceil(n / cols)
+    fig, axes = plt.subplots(rows, cols, figsize=(4.6 * cols + (1.2 if not fiducial else 0), 3.5 * rows + 0.6),
+                             squeeze=False)
+    if not fiducial:
+        positive = colour[colour > 0]
+        log = int(a.get("colour_log", 0)) == 1 and positive.size == colour.size
+        norm = (matplotlib.colors.LogNorm if log else matplotlib.colors.Normalize)(colour.min(), colour.max())
+        cmap = plt.get_cmap("viridis")
+    for p in range(rows * cols):
+        ax = axes.flat[p]
+        if p >= n:
+            ax.axis("off")
+            continue
+        empty = True
+        for s_i, name in enumerate(names):
+            cols_ = np.flatnonzero((panel == p) & (np.array(series) == name))
+            if cols_.size == 0:
+                continue
+            order = cols_[np.argsort(x[cols_])]
+            xs = x[order]
+            y = values[:, order]
+            if np.isfinite(y).any():
+                empty = False
+            if fiducial:
+                col = f"C{s_i}"
+                mean = np.nanmean(y, axis=0) if np.isfinite(y).any() else np.full(len(xs), np.nan)
+                ax.plot(xs, mean, color=col, marker="o", ms=3, lw=1.5, label=f"{name}: mean")
+                if y.shape[0] > 1:
+                    sd = np.nanstd(y, axis=0, ddof=1)  # sample standard deviation of the realisations
+                    ax.fill_between(xs, mean - sd, mean + sd, color=col, alpha=0.25, lw=0, label=f"{name}: ±1σ")
+            else:
+                for e in range(y.shape[0]):
+                    ax.plot(xs, y[e], color=cmap(norm(colour[e])), ls=STYLES[s_i % len(STYLES)], lw=1.1,
+                            marker="o" if len(xs) < 4 else None, ms=2.5, alpha=0.9)
+        if empty:
+            ax.text(0.5, 0.5, "no measured value\n(every mode removed)", transform=ax.transAxes, ha="center",
+                    va="center", fontsize=8, color="0.4")
+        if xlog[p]:
+            ax.set_xscale("log")
+        finite = values[:, panel == p]
+        finite = finite[np.isfinite(finite)]
+        if finite.size and finite.min() > 0 and finite.max() / finite.min() > 30:
+            ax.set_yscale("log")
+        ax.set_title(titles[p], fontsize=8.5)
+        ax.set_xlabel(xlabels[p], fontsize=8)
+        ax.set_ylabel(ylabels[p], fontsize=8)
+        ax.tick_params(labelsize=7)
+        ax.grid(alpha=0.25, lw=0.5)
+        if against_z:
+            frequency_axis(ax)
+    if fiducial:
+        handles, labels = axes.flat[0].get_legend_handles_labels()
+        fig.legend(handles, labels, loc="lower center", ncol=min(4, len(labels)), fontsize=8, frameon=False)
+    else:
+        sm = matplotlib.cm.ScalarMappable(norm=norm, cmap=cmap)
+        fig.colorbar(sm, ax=axes.ravel().tolist(), fraction=0.03, pad=0.02, label=a.get("colour_label", ""))
+        if len(names) > 1:
+            handles = [plt.Line2D([], [], color="k", ls=STYLES[i % len(STYLES)]) for i in range(len(names))]
+            fig.legend(handles, [f"scenario {s}" for s in names], loc="lower center", ncol=len(names), fontsize=8,
+                       frameon=False)
+        else:
+            fig.text(0.01, 0.01, f"scenario {names[0]}", fontsize=8)
+    fig.suptitle(f"{a['title']}\nselection: {a['select']}", fontsize=9.5)
+    if fiducial:
+        fig.tight_layout(rect=(0, 0.05, 1, 1))
+    else:
+        fig.subplots_adjust(left=0.07, right=0.86, bottom=0.12, top=0.84, hspace=0.75, wspace=0.35)
+    partial = dst + ".partial"
+    fig.savefig(partial, format=fmt, dpi=120)
+    os.replace(partial, dst)
+
+
+if __name__ == "__main__":
+    if len(sys.argv) != 4 or sys.argv[3] not in ("png", "pdf"):
+        sys.exit(__doc__)
+    main(*sys.argv[1:])

@@ -52,12 +52,29 @@ def colour_scale(cube):
     return dict(cmap="magma", vmin=min(lo, 0.0), vmax=max(hi, 1e-6))
 
 
+def number(v):
+    """3 significant digits, powers of ten written out: 2×10⁴, 30, 0.125."""
+    m, e = f"{v:.3g}".partition("e")[::2]
+    if not e:
+        return m
+    sup = str(int(e)).translate(str.maketrans("-0123456789", "⁻⁰¹²³⁴⁵⁶⁷⁸⁹"))
+    return ("" if m == "1" else f"{m}×") + f"10{sup}"
+
+
+def param_text(label, value):
+    """ "T_vir,min = 2×10⁴ K" from the label "T_vir,min [K]"."""
+    if label.endswith("]") and " [" in label:
+        name, unit = label[:-1].split(" [", 1)
+        return f"{name} = {number(value)} {unit}"
+    return f"{label} = {number(value)}"
+
+
 def title_of(f):
     point, real = int(f.attrs["point"]), int(f.attrs["realisation"])
     role = text(f.attrs["role"]) if "role" in f.attrs else ""
     names = [text(s) for s in f.attrs.get("param_labels", f.attrs.get("param_names", []))]
     values = np.atleast_1d(f.attrs.get("params", []))
-    params = ", ".join(f"{n} = {v:.3g}" for n, v in zip(names, values))
+    params = ", ".join(param_text(n, v) for n, v in zip(names, values))
     head = f"design point {point}" + (f" ({role})" if role else "") + f", realisation {real}"
     return head + (f"\n{params}" if params else "")
 
@@ -157,7 +174,7 @@ def main(src, dst):
             ax.text(0.0, 0.5, f"no interferometer in this file\n{n_perp}×{n_perp}×{n_los} cells of {cell:g} Mpc",
                     fontsize=10)
         fig.suptitle(f"spinflip cone: {title_of(f)}", fontsize=11)
-    fig.tight_layout()
+    fig.tight_layout(rect=(0, 0, 1, 1 - 0.7 / fig.get_figheight()))  # room for the two-line title
     fig.savefig(dst, dpi=110)
 
 

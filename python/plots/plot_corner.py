@@ -40,7 +40,7 @@ def axis_label(label, unit, log):
     return f"log₁₀({name} / {u})" if u else f"log₁₀ {name}"
 
 
-def notes_of(sel, g):
+def notes_of(sel, g, label):
     """Lines saying when a shrunk covariance or a failed convergence check is involved."""
     out = []
     if text(g.attrs.get("shrinkage", "none")) != "none":
@@ -50,7 +50,8 @@ def notes_of(sel, g):
         labels = [text(s) for s in c["labels"][()]]
         flagged, ratio = c["flagged"][()], c["ratio"][()]
         for i, j in zip(*np.nonzero(flagged)):
-            out.append(f"{sel}: convergence check failed: {labels[i]} moves σ by {100 * (ratio[i, j] - 1):+.0f}%")
+            out.append(f"{sel}: convergence check failed: {labels[i]} moves σ({label[j]}) by "
+                       f"{100 * (ratio[i, j] - 1):+.0f}%")
     return out
 
 
@@ -63,16 +64,16 @@ def main(src, dst):
         fid = np.asarray(f.attrs["fiducial"], float)
         sels = [text(s) for s in f.attrs["selections"]]
         covs = {s: f[s]["fisher_inverse"][()] for s in sels}
-        notes = [n for s in sels for n in notes_of(s, f[s])]
-    # Units of log parameters are written "log10(K)" in the file: the label carries the unit instead.
-    plain_units = [u[6:-1] if u.startswith("log10(") and u.endswith(")") else u for u in units]
-    label = [axis_label(lb, u, lg) for lb, u, lg in zip(labels, plain_units, logs)]
+        # Units of log parameters are written "log10(K)" in the file: the label carries the unit instead.
+        plain_units = [u[6:-1] if u.startswith("log10(") and u.endswith(")") else u for u in units]
+        label = [axis_label(lb, u, lg) for lb, u, lg in zip(labels, plain_units, logs)]
+        notes = [n for s in sels for n in notes_of(s, f[s], label)]
     p = len(names)
     colours = plt.rcParams["axes.prop_cycle"].by_key()["color"]
     fig, axes = plt.subplots(p, p, figsize=(2.9 * p + 1.2, 2.9 * p + 1.2), squeeze=False)
-    # Frame the typical selection (median width), not the weakest: a selection that
-    # constrains little runs off the panels instead of shrinking every other ellipse to a dot.
-    span = np.median([np.sqrt(np.diag(c)) for c in covs.values()], axis=0) * 3.2
+    # Frame the tightest selection (its 2σ region with a margin), not the weakest: a selection
+    # that constrains little runs off the panels instead of shrinking every other ellipse to a dot.
+    span = np.min([np.sqrt(np.diag(c)) for c in covs.values()], axis=0) * 3.5
     for i in range(p):
         for j in range(p):
             ax = axes[i, j]

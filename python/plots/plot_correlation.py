@@ -66,8 +66,8 @@ def panel(ax, g, name):
     right = ax.secondary_yaxis("right")
     right.set_yticks(bc)
     right.set_yticklabels(bl, fontsize=7.5, rotation=90, va="center")
-    ax.set_title(f"{name}: {g.attrs['n_data']} coefficients, {g.attrs['n_realisations']} realisations, "
-                 f"condition number {g.attrs['condition_number']:.3g}", fontsize=8.5, pad=22)
+    ax.set_title(f"{name}\n{g.attrs['n_data']} coefficients, {g.attrs['n_realisations']} realisations, "
+                 f"condition number {g.attrs['condition_number']:.3g}", fontsize=8.5, pad=20)
     return im
 
 
@@ -75,7 +75,7 @@ def main(src, dst):
     with h5py.File(src, "r") as f:
         names = [text(s) for s in f.attrs["selections"]]
         n = len(names)
-        fig, axes = plt.subplots(1, n, figsize=(5.8 * n + 0.8, 5.6), squeeze=False)
+        fig, axes = plt.subplots(1, n, figsize=(6.2 * n + 0.8, 5.8), squeeze=False, gridspec_kw={"wspace": 0.45})
         for ax, name in zip(axes[0], names):
             im = panel(ax, f[name], name)
         fig.colorbar(im, ax=axes[0].tolist(), shrink=0.8, pad=0.06, label="correlation coefficient")

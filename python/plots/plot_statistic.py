@@ -26,9 +26,25 @@ def text(v):
     return v.decode() if isinstance(v, bytes) else str(v)
 
 
+def z_to_nu(z):
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return NU21_MHZ / (1 + np.asarray(z, float))
+
+
+def nu_to_z(nu):
+    with np.errstate(divide="ignore", invalid="ignore"):  # matplotlib probes the inverse at 0 too
+        return NU21_MHZ / np.asarray(nu, float) - 1
+
+
+def plain_log_ticks(axis):
+    """Decimal labels (0.2, 0.5, 1) on a log axis instead of 2×10⁻¹."""
+    axis.set_major_locator(matplotlib.ticker.LogLocator(subs=(1.0, 2.0, 5.0)))
+    axis.set_major_formatter(matplotlib.ticker.FuncFormatter(lambda v, _: f"{v:g}"))
+    axis.set_minor_formatter(matplotlib.ticker.NullFormatter())
+
+
 def frequency_axis(ax):
-    top = ax.secondary_xaxis("top", functions=(lambda z: NU21_MHZ / (1 + np.asarray(z, float)),
-                                               lambda nu: NU21_MHZ / np.asarray(nu, float) - 1))
+    top = ax.secondary_xaxis("top", functions=(z_to_nu, nu_to_z))
     top.set_xlabel("observed frequency [MHz]", fontsize=8)
     top.tick_params(labelsize=7)
 
@@ -51,8 +67,12 @@ def main(src, dst, fmt):
     n = len(titles)
     cols = min(3, n)
     rows = math.ceil(n / cols)
-    fig, axes = plt.subplots(rows, cols, figsize=(4.6 * cols + (1.2 if not fiducial else 0), 3.5 * rows + 0.6),
-                             squeeze=False)
+    height = 3.5 * rows + 1.5
+    fig, axes = plt.subplots(rows, cols, figsize=(4.8 * cols + 1.4, height), squeeze=False)
+    # Margins in inches, so one row and four rows both leave room for the titles and the legend.
+    fig.subplots_adjust(left=0.8 / fig.get_figwidth(), right=0.97,
+                        bottom=1.0 / height, top=1 - (1.25 if against_z else 0.95) / height,
+                        hspace=0.85 if against_z else 0.5, wspace=0.35)
     if not fiducial:
         positive = colour[colour > 0]
         log = int(a.get("colour_log", 0)) == 1 and positive.size == colour.size
@@ -89,10 +109,14 @@ def main(src, dst, fmt):
                     va="center", fontsize=8, color="0.4")
         if xlog[p]:
             ax.set_xscale("log")
+            plain_log_ticks(ax.xaxis)
+        # Spectra span decades (and a noise bias sits far above the signal): a log axis when
+        # the positive values span more than two decades; zeros (nothing left to measure) are masked.
         finite = values[:, panel == p]
-        finite = finite[np.isfinite(finite)]
-        if finite.size and finite.min() > 0 and finite.max() / finite.min() > 30:
-            ax.set_yscale("log")
+        finite = finite[np.isfinite(finite) & (finite > 0)]
+        if finite.size and (values[:, panel == p][np.isfinite(values[:, panel == p])] >= 0).all() \
+                and finite.max() / finite.min() > 100:
+            ax.set_yscale("log", nonpositive="mask")
         ax.set_title(titles[p], fontsize=8.5)
         ax.set_xlabel(xlabels[p], fontsize=8)
         ax.set_ylabel(ylabels[p], fontsize=8)
@@ -102,10 +126,15 @@ def main(src, dst, fmt):
             frequency_axis(ax)
     if fiducial:
         handles, labels = axes.flat[0].get_legend_handles_labels()
-        fig.legend(handles, labels, loc="lower center", ncol=min(4, len(labels)), fontsize=8, frameon=False)
+        fig.legend(handles, labels, loc="lower center", ncol=min(4, len(labels)), fontsize=8, frameon=False,
+                   bbox_to_anchor=(0.5, 0.0))
     else:
         sm = matplotlib.cm.ScalarMappable(norm=norm, cmap=cmap)
-        fig.colorbar(sm, ax=axes.ravel().tolist(), fraction=0.03, pad=0.02, label=a.get("colour_label", ""))
+        cb = fig.colorbar(sm, ax=axes.ravel().tolist(), fraction=0.03, pad=0.02)
+        label = a.get("colour_label", "")
+        cb.set_label(label, fontsize=10, rotation=0 if len(label) <= 3 else 90, labelpad=10)
+        if log:
+            plain_log_ticks(cb.ax.yaxis)
         if len(names) > 1:
             handles = [plt.Line2D([], [], color="k", ls=STYLES[i % len(STYLES)]) for i in range(len(names))]
             fig.legend(handles, [f"scenario {s}" for s in names], loc="lower center", ncol=len(names), fontsize=8,
@@ -113,10 +142,6 @@ def main(src, dst, fmt):
         else:
             fig.text(0.01, 0.01, f"scenario {names[0]}", fontsize=8)
     fig.suptitle(f"{a['title']}\nselection: {a['select']}", fontsize=9.5)
-    if fiducial:
-        fig.tight_layout(rect=(0, 0.05, 1, 1))
-    else:
-        fig.subplots_adjust(left=0.07, right=0.86, bottom=0.12, top=0.84, hspace=0.75, wspace=0.35)
     partial = dst + ".partial"
     fig.savefig(partial, format=fmt, dpi=120)
     os.replace(partial, dst)

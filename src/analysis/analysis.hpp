@@ -123,6 +123,7 @@ struct PlotOptions {
   std::vector<std::string> roles = {"training", "list"};
   std::optional<double> at_z;        // against coefficient: the redshift (default: the middle unit)
   std::string format;                // png or pdf (default: from the extension, else png)
+  std::string data_output;           // also keep the plotted numbers here (HDF5); empty: not kept
   bool allow_incomplete = false;
   std::optional<std::int64_t> point;
 };

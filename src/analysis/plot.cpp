@@ -41,7 +41,7 @@ double axis(const Block& b, const char* name, std::size_t c) {
   return it == b.axes.end() ? NAN : it->second[c];
 }
 bool has(const Block& b, const char* name) { return b.axes.count(name) > 0; }
-bool is_power(const Block& b) { return has(b, "quantity") && has(b, "k_lo") && has(b, "k_hi"); }
+bool is_power(const Block& b) { return has(b, "k_lo") && has(b, "k_hi") && !has(b, "k1"); }
 bool is_scattering(const Block& b) { return has(b, "order") && has(b, "j1"); }
 
 std::string attr(const Block& b, const std::string& name, const std::string& fallback = "") {
@@ -127,7 +127,7 @@ std::string family(const Block& b, const Element& el) {
 std::string default_select(const Catalogue& cat) {
   for (const char* k : {"power", "slice_power"})
     for (const auto& b : cat.blocks())
-      if (b.kernel == k && is_power(b)) return std::string("kernel=") + k + ";quantity=1";
+      if (b.kernel == k && is_power(b)) return std::string("kernel=") + k + (has(b, "quantity") ? ";quantity=1" : "");
   return "kernel=" + cat.blocks().front().kernel;
 }
 
@@ -136,7 +136,7 @@ struct RemoveOnExit {
   std::string path;
   ~RemoveOnExit() {
     std::error_code ec;
-    std::filesystem::remove(path, ec);
+    if (!path.empty()) std::filesystem::remove(path, ec);
   }
 };
 
@@ -263,8 +263,10 @@ void run_statistic_plot(const PlotOptions& o) {
 
   const Eigen::MatrixXd X = cat.load(sel, entries);
   const std::string output = o.output;
-  const std::string data_path = output + "." + std::to_string(::getpid()) + ".plotdata.h5";
-  RemoveOnExit cleanup{data_path};
+  // The numbers behind the picture: kept where --data asks, else a scratch file beside the output.
+  const std::string data_path =
+      o.data_output.empty() ? output + "." + std::to_string(::getpid()) + ".plotdata.h5" : o.data_output;
+  RemoveOnExit cleanup{o.data_output.empty() ? data_path : std::string()};
   {
     h5::Id f = h5::create_file(data_path);
     h5::write_attr(f.get(), "mode", std::string(o.fiducial ? "fiducial" : "design"));
@@ -298,6 +300,17 @@ void run_statistic_plot(const PlotOptions& o) {
     h5::write_strings(f.get(), "panel_xlabel", panel_x);
     h5::write_strings(f.get(), "panel_ylabel", panel_y);
     h5::write_ints(f.get(), "panel_xlog", panel_xlog, {np});
+    std::vector<std::int64_t> ent(entries.begin(), entries.end()), el_unit, el_coeff;
+    for (const auto& el : sel.elements) {
+      el_unit.push_back(static_cast<std::int64_t>(el.unit));
+      el_coeff.push_back(static_cast<std::int64_t>(el.coeff));
+    }
+    h5::write_ints(f.get(), "entries", ent, {ne});
+    h5::write_ints(f.get(), "element_unit", el_unit, {nel});
+    h5::write_ints(f.get(), "element_coeff", el_coeff, {nel});
+    std::vector<std::string> el_kernel;
+    for (const auto& el : sel.elements) el_kernel.push_back(cat.blocks()[el.block].kernel);
+    h5::write_strings(f.get(), "element_kernel", el_kernel);
   }
   if (!detail::run_plot("plot_statistic.py", {data_path, output, format}))
     throw IoError("the picture " + output + " was not drawn (see the warning above)");

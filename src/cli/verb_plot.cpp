@@ -26,6 +26,7 @@ RegisterVerb plot_verb(
       sub.add_option("--role", o->roles, "design roles to draw (default: training list)")->capture_default_str();
       sub.add_option("--point", *point, "fiducial design point, when the design has several");
       sub.add_option("--format", o->format, "png or pdf (default: from the output's extension, else png)");
+      sub.add_option("--data", o->data_output, "also keep the plotted numbers in this HDF5 file (docs/analysis.md)");
       sub.add_flag("--allow-incomplete", o->allow_incomplete, "use the done entries even if some are still pending");
       sub.add_option("-o,--output", o->output, "picture to write (atomically: drawn beside it, then renamed)")
           ->capture_default_str();

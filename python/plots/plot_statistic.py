@@ -65,12 +65,12 @@ def main(src, dst, fmt):
     against_z = a["against"] == "z"
     names = list(dict.fromkeys(series))  # scenarios, in selection order
     n = len(titles)
-    cols = min(3, n)
+    cols = 2 if n == 4 else min(3, n)
     rows = math.ceil(n / cols)
     height = 3.5 * rows + 1.5
     fig, axes = plt.subplots(rows, cols, figsize=(4.8 * cols + 1.4, height), squeeze=False)
     # Margins in inches, so one row and four rows both leave room for the titles and the legend.
-    fig.subplots_adjust(left=0.8 / fig.get_figwidth(), right=0.97,
+    fig.subplots_adjust(left=0.8 / fig.get_figwidth(), right=0.97 if fiducial else 1 - 1.0 / fig.get_figwidth(),
                         bottom=1.0 / height, top=1 - (1.25 if against_z else 0.95) / height,
                         hspace=0.85 if against_z else 0.5, wspace=0.35)
     if not fiducial:

@@ -100,6 +100,8 @@ def main(src, dst, fmt):
                 if y.shape[0] > 1:
                     sd = np.nanstd(y, axis=0, ddof=1)  # sample standard deviation of the realisations
                     ax.fill_between(xs, mean - sd, mean + sd, color=col, alpha=0.25, lw=0, label=f"{name}: ±1σ")
+                    if len(xs) == 1:  # a band of one point is invisible: an error bar instead
+                        ax.errorbar(xs, mean, yerr=sd, color=col, capsize=4, lw=1.2)
             else:
                 for e in range(y.shape[0]):
                     ax.plot(xs, y[e], color=cmap(norm(colour[e])), ls=STYLES[s_i % len(STYLES)], lw=1.1,
@@ -117,6 +119,10 @@ def main(src, dst, fmt):
         if finite.size and (values[:, panel == p][np.isfinite(values[:, panel == p])] >= 0).all() \
                 and finite.max() / finite.min() > 100:
             ax.set_yscale("log", nonpositive="mask")
+        if xlabels[p].startswith("j"):  # wavelet scales are whole numbers
+            lo, hi = np.nanmin(x[panel == p]), np.nanmax(x[panel == p])
+            ax.set_xticks(np.arange(np.ceil(lo), np.floor(hi) + 1))
+            ax.set_xlim(lo - 0.5, hi + 0.5)
         ax.set_title(titles[p], fontsize=8.5)
         ax.set_xlabel(xlabels[p], fontsize=8)
         ax.set_ylabel(ylabels[p], fontsize=8)

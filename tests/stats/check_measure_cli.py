@@ -100,6 +100,11 @@ with h5py.File(out, "r") as h:
     check(set(sp["values"].dims[1].keys()) == {"quantity", "k_lo", "k_hi", "k_mean", "n_modes"}, "k axes are scales")
     check(list(h["moments"].attrs["quantity_names"]) == ["mean", "variance", "skewness", "excess_kurtosis"],
           "moments without a histogram name their four quantities")
+r, out = run(path("cube.npy"), "[stats.moments]\nhistogram_edges = [-2.0, 0.0, 2.0]\n")
+with h5py.File(out, "r") as h:
+    q, names = h["moments"]["quantity"][()], list(h["moments"].attrs["quantity_names"])
+    check(names[-1] == "histogram_fraction" and len(names) == len(set(q.tolist())) == 5,
+          f"moments with a histogram: one name per quantity present ({names})")
 
 # --- user errors: exit status 2, one line
 expect_error("2D array with a 3D kernel", path("c.npy"), "3D chunks",

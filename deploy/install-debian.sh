@@ -22,6 +22,7 @@ packages=(
   libtomlplusplus-dev libcli11-dev libeigen3-dev librandom123-dev
   libssl-dev
   python3 python3-numpy python3-scipy python3-h5py python3-astropy python3-matplotlib
+  python3-setuptools python3-wheel python3-venv python3-pip
 )
 
 if [ "${SPINFLIP_SKIP_APT:-0}" != 1 ]; then

@@ -1,7 +1,10 @@
-"""Read spinflip catalogues and analysis outputs into numpy arrays (h5py only).
+"""Read spinflip catalogues and analysis outputs into numpy arrays (h5py only;
+xarray DataArrays from `select` when xarray is installed).
 
     import spinflip_catalogue as sc
     cat = sc.open_catalogue("demo.h5")
+    d2 = cat.select("deep", "power", role="training", z=8.5, quantity="delta2")
+    d2.values, d2.coords["k_mean"]              # Δ²(k) of every done training entry at z ≈ 8.5
     st = cat.stats("deep", "power")            # done entries only
     st.values.shape                             # (n_done, n_units, n_coeff)
     cat.entry_params[st.entries]                # their parameter vectors
@@ -15,8 +18,38 @@ from dataclasses import dataclass, field
 import h5py
 import numpy as np
 
-__all__ = ["open_catalogue", "Catalogue", "Stats", "load_export", "TrainingSet", "load_covariance",
-           "load_fisher", "to_unit", "from_unit", "SPLITS"]
+__all__ = ["open_catalogue", "Catalogue", "Stats", "Selected", "SpinflipFileError", "load_export", "TrainingSet",
+           "load_covariance", "load_fisher", "to_unit", "from_unit", "SPLITS"]
+
+
+class SpinflipFileError(ValueError):
+    """A file is not (or not yet, or no longer wholly) what a spinflip reader expects."""
+
+
+def _open(path, what):
+    try:
+        return h5py.File(path, "r")
+    except FileNotFoundError:
+        raise SpinflipFileError(f"{path}: no such file") from None
+    except OSError as e:
+        raise SpinflipFileError(f"{path}: cannot be opened as HDF5 ({e}); is it a {what}?") from None
+
+
+def _need(f, key, path, what):
+    """f[key], or a SpinflipFileError saying what is missing and why that may be."""
+    try:
+        return f[key]
+    except KeyError:
+        raise SpinflipFileError(f"{path}: no '{f.name.rstrip('/')}/{key}' — not a {what}, or one whose writing was interrupted "
+                                f"(a partial file)") from None
+
+
+def _need_attr(obj, name, path, what):
+    try:
+        return obj.attrs[name]
+    except KeyError:
+        raise SpinflipFileError(f"{path}: no attribute '{name}' on '{obj.name}' — not a {what}, or a partial "
+                                f"file") from None
 
 SPLITS = {"train": 0, "validation": 1, "test": 2}
 
@@ -66,31 +99,84 @@ class Stats:
     attrs: dict = field(default_factory=dict)
 
 
+@dataclass
+class Selected:
+    """Values picked by Catalogue.select with their coordinates.
+
+    dims names the axes of `values` ("entry", then "unit" unless one redshift
+    was asked, then "coefficient"); coords maps a name to (dim, array) — or,
+    for `params`, ("entry", "parameter") and an (n_entries, n_params) array.
+    """
+    values: np.ndarray
+    dims: tuple
+    coords: dict
+    attrs: dict = field(default_factory=dict)
+
+    @property
+    def shape(self):
+        return self.values.shape
+
+    def coord(self, name):
+        return self.coords[name][1]
+
+    def to_xarray(self):
+        """The same as an xarray.DataArray (ImportError when xarray is missing)."""
+        import xarray as xr
+        coords = {k: (d, v) for k, (d, v) in self.coords.items()}
+        return xr.DataArray(self.values, dims=self.dims, coords=coords, attrs=self.attrs,
+                            name=f"{self.attrs.get('scenario')}/{self.attrs.get('kernel')}")
+
+
+def _filter(values, want, what):
+    """Mask of `values` accepted by want: a number, a list of numbers, or a (lo, hi) range (None: open)."""
+    values = np.asarray(values, float)
+    if isinstance(want, tuple) and len(want) == 2:
+        lo, hi = want
+        return (values >= (-np.inf if lo is None else lo)) & (values <= (np.inf if hi is None else hi))
+    wanted = np.atleast_1d(np.asarray(want, float))
+    if wanted.size == 0:
+        raise ValueError(f"{what}: an empty list selects nothing")
+    return np.isclose(values[:, None], wanted[None, :], rtol=1e-9, atol=0).any(axis=1)
+
+
 class Catalogue:
-    """A catalogue opened read-only; arrays are loaded eagerly except /stats values."""
+    """A catalogue opened read-only; arrays are loaded eagerly except /stats values.
+
+    A catalogue still being written opens too (pending entries have status 0 and
+    NaN values); a file that is not a catalogue raises SpinflipFileError."""
+
+    WHAT = "spinflip catalogue"
 
     def __init__(self, path):
         self.path = path
-        self._f = h5py.File(path, "r")
-        f = self._f
-        d = f["design"]
-        self.param_names = _text(d["param_names"][()])
+        self._f = _open(path, self.WHAT)
+        try:
+            self._read()
+        except BaseException:
+            self._f.close()
+            raise
+
+    def _read(self):
+        f, path, what = self._f, self.path, self.WHAT
+        d = _need(f, "design", path, what)
+        self.param_names = _text(_need(d, "param_names", path, what)[()])
         n = len(self.param_names)
         self.param_units = _text(d["param_units"][()]) if "param_units" in d else [""] * n
+        self.param_labels = _text(d["param_labels"][()]) if "param_labels" in d else list(self.param_names)
         self.param_log = d["param_log"][()].astype(bool) if "param_log" in d else np.zeros(n, bool)
         self.param_min = d["param_min"][()] if "param_min" in d else None
         self.param_max = d["param_max"][()] if "param_max" in d else None
         self.param_fiducial = d["param_fiducial"][()] if "param_fiducial" in d else None
-        self.points = d["points"][()]
-        self.roles = np.array(_text(d["role"][()]))
-        self.stencil_param = d["stencil_param"][()]
-        self.stencil_step = d["stencil_step"][()]
-        self.stencil_step_index = d["stencil_step_index"][()]
-        self.seed_point = d["seed_point"][()]
-        e = f["entries"]
-        self.entry_point = e["point"][()]
-        self.entry_realisation = e["realisation"][()]
-        self.entry_status = e["status"][()]
+        self.points = _need(d, "points", path, what)[()]
+        self.roles = np.array(_text(_need(d, "role", path, what)[()]))
+        self.stencil_param = d["stencil_param"][()] if "stencil_param" in d else np.full(len(self.roles), -1)
+        self.stencil_step = d["stencil_step"][()] if "stencil_step" in d else np.zeros(len(self.roles))
+        self.stencil_step_index = d["stencil_step_index"][()] if "stencil_step_index" in d else np.full(len(self.roles), -1)
+        self.seed_point = d["seed_point"][()] if "seed_point" in d else np.arange(len(self.roles))
+        e = _need(f, "entries", path, what)
+        self.entry_point = _need(e, "point", path, what)[()]
+        self.entry_realisation = _need(e, "realisation", path, what)[()]
+        self.entry_status = _need(e, "status", path, what)[()]
         self.entry_params = e["params"][()] if "params" in e else self.points[self.entry_point]
         self.provenance = _attrs(f)
 
@@ -117,15 +203,20 @@ class Catalogue:
         return np.flatnonzero(self.entry_status == 1)
 
     def entries_with_role(self, role, done_only=True):
-        e = np.flatnonzero(self.roles[self.entry_point] == role)
+        roles = [role] if isinstance(role, str) else list(role)
+        e = np.flatnonzero(np.isin(self.roles[self.entry_point], roles))
         return e[self.entry_status[e] == 1] if done_only else e
+
+    def _group(self, scenario, kernel):
+        try:
+            return self._f["stats"][scenario][kernel]
+        except KeyError:
+            avail = ", ".join(f"{s}/{k}" for s, k in self.kernels())
+            raise SpinflipFileError(f"{self.path}: no /stats/{scenario}/{kernel}; available: {avail}") from None
 
     def stats(self, scenario, kernel, entries=None):
         """Values of the given entries (default: every done entry) and the axes."""
-        try:
-            g = self._f["stats"][scenario][kernel]
-        except KeyError:
-            raise KeyError(f"{self.path}: no /stats/{scenario}/{kernel}; available: {self.kernels()}") from None
+        g = self._group(scenario, kernel)
         entries = self.done() if entries is None else np.asarray(entries)
         values = g["values"][np.sort(entries)] if len(entries) else np.empty((0,) + g["values"].shape[1:])
         order = np.argsort(np.argsort(entries)) if len(entries) else entries
@@ -133,6 +224,98 @@ class Catalogue:
         return Stats(scenario, kernel, values[order], entries, axes,
                      g["unit_freq_MHz"][()] if "unit_freq_MHz" in g else None,
                      g["unit_z"][()] if "unit_z" in g else None, _attrs(g))
+
+    def select(self, scenario, kernel, role=None, z=None, quantity=None, done_only=True, as_xarray=None, **axes):
+        """Values of one kernel with their coordinates.
+
+        role: a role or list of roles (training, fiducial, stencil+, stencil-, list); None: every role.
+        z: a number picks the unit nearest that redshift (the unit dimension is dropped);
+           (lo, hi) keeps the units in that range; None keeps every unit.
+        quantity: a name from the group's quantity_names ("power", "delta2", "variance", …) or its number.
+        axes: any coefficient axis = a value, a list of values or a (lo, hi) range, e.g. order=1, j1=(0, 2).
+        Returns an xarray.DataArray when xarray is importable (as_xarray=None) or asked (True), else Selected.
+        Only done entries unless done_only=False (pending rows are NaN)."""
+        g = self._group(scenario, kernel)
+        attrs = _attrs(g)
+        if role is None:
+            entries = self.done() if done_only else np.arange(len(self.entry_status))
+        else:
+            roles = [role] if isinstance(role, str) else list(role)
+            unknown = sorted(set(roles) - set(self.roles.tolist()))
+            if unknown:
+                raise ValueError(f"role {unknown} is not in {self.path} (roles: {sorted(set(self.roles.tolist()))})")
+            entries = self.entries_with_role(roles, done_only)
+        uz = g["unit_z"][()] if "unit_z" in g else np.full(g["values"].shape[1], np.nan)
+        uf = g["unit_freq_MHz"][()] if "unit_freq_MHz" in g else np.full(g["values"].shape[1], np.nan)
+        units = np.arange(len(uz))
+        scalar_z = z is not None and np.ndim(z) == 0 and not isinstance(z, tuple)
+        if scalar_z:
+            if not np.isfinite(uz).any():
+                raise ValueError(f"/stats/{scenario}/{kernel} has no unit_z to pick z = {z} from")
+            units = np.array([int(np.nanargmin(np.abs(uz - float(z))))])
+        elif z is not None:
+            units = units[_filter(uz, z, "z")]
+        axis_names = [k for k in g if k not in ("values", "unit_freq_MHz", "unit_z", "unit_index")
+                      and isinstance(g[k], h5py.Dataset) and g[k].shape == (g["values"].shape[-1],)]
+        ax = {k: g[k][()] for k in axis_names}
+        keep = np.ones(g["values"].shape[-1], bool)
+        if quantity is not None:
+            if "quantity" not in ax:
+                raise ValueError(f"/stats/{scenario}/{kernel} has no quantity axis")
+            names = _text(g.attrs.get("quantity_names", []))
+            names = [names] if isinstance(names, str) else list(names)
+            if isinstance(quantity, str):
+                if quantity not in names:
+                    raise ValueError(f"quantity '{quantity}' is not one of {names} in /stats/{scenario}/{kernel}")
+                quantity = names.index(quantity)
+            keep &= ax["quantity"] == int(quantity)
+        for name, want in axes.items():
+            if name not in ax:
+                raise ValueError(f"'{name}' is not a coefficient axis of /stats/{scenario}/{kernel} "
+                                 f"(axes: {', '.join(sorted(ax))})")
+            keep &= _filter(ax[name], want, name)
+        coeff = np.flatnonzero(keep)
+        if len(entries):
+            raw = g["values"][np.sort(entries)]
+            raw = raw[np.argsort(np.argsort(entries))]
+        else:
+            raw = np.empty((0,) + g["values"].shape[1:])
+        values = raw[:, units][:, :, coeff]
+        coords = {"entry": ("entry", np.asarray(entries)),
+                  "point": ("entry", self.entry_point[entries]),
+                  "realisation": ("entry", self.entry_realisation[entries]),
+                  "role": ("entry", self.roles[self.entry_point[entries]]),
+                  "params": (("entry", "parameter"), self.entry_params[entries]),
+                  "parameter": ("parameter", np.array(self.param_names))}
+        for i, name in enumerate(self.param_names):
+            if name not in ax:
+                coords[name] = ("entry", self.entry_params[entries, i])
+        coords["coefficient"] = ("coefficient", coeff)
+        for k, v in ax.items():
+            coords[k] = ("coefficient", v[coeff])
+        if scalar_z:
+            values = values[:, 0, :]
+            dims = ("entry", "coefficient")
+            coords["z"] = ((), uz[units[0]])
+            coords["freq_MHz"] = ((), uf[units[0]])
+        else:
+            dims = ("entry", "unit", "coefficient")
+            coords["unit"] = ("unit", units)
+            coords["z"] = ("unit", uz[units])
+            coords["freq_MHz"] = ("unit", uf[units])
+        out_attrs = {"scenario": scenario, "kernel": kernel, "catalogue": str(self.path)}
+        for k in ("units", "description"):
+            if k in g["values"].attrs:
+                out_attrs[k] = _text(g["values"].attrs[k])
+        sel = Selected(values, dims, coords, out_attrs)
+        if as_xarray is False:
+            return sel
+        try:
+            return sel.to_xarray()
+        except ImportError:
+            if as_xarray:
+                raise
+            return sel
 
 
 def open_catalogue(path):
@@ -142,33 +325,38 @@ def open_catalogue(path):
 class TrainingSet:
     """A `spinflip export` file."""
 
+    WHAT = "spinflip export (training set) file"
+
     def __init__(self, path):
-        with h5py.File(path, "r") as f:
+        what = self.WHAT
+        with _open(path, what) as f:
             self.attrs = _attrs(f)
             self.provenance = _attrs(f["provenance"]) if "provenance" in f else {}
-            p = f["params"]
-            self.param_names = _text(p["names"][()])
-            self.param_units = _text(p["units"][()])
-            self.param_log = p["log"][()].astype(bool)
-            self.param_min, self.param_max = p["min"][()], p["max"][()]
-            self.params = p["physical"][()]
-            self.params_unit = p["unit_cube"][()]
-            self.entry = f["entry"][()]
-            self.point = f["point"][()]
-            self.realisation = f["realisation"][()]
-            self.split = f["split"][()]
+            p = _need(f, "params", path, what)
+            self.param_names = _text(_need(p, "names", path, what)[()])
+            self.param_units = _text(p["units"][()]) if "units" in p else [""] * len(self.param_names)
+            self.param_log = _need(p, "log", path, what)[()].astype(bool)
+            self.param_min, self.param_max = _need(p, "min", path, what)[()], _need(p, "max", path, what)[()]
+            self.params = _need(p, "physical", path, what)[()]
+            self.params_unit = _need(p, "unit_cube", path, what)[()]
+            self.entry = _need(f, "entry", path, what)[()]
+            self.point = _need(f, "point", path, what)[()]
+            self.realisation = _need(f, "realisation", path, what)[()]
+            self.split = _need(f, "split", path, what)[()]
             self.selections = {}
-            for name in _text(f.attrs["selections"]):
-                g = f[name]
-                sel = {k: g[k][()] for k in ("data", "data_normalised", "norm_mean", "norm_std")}
-                sel["labels"] = _text(g["selection/label"][()])
-                sel["record"] = _text(g["selection"].attrs["record"])
+            for name in _text(_need_attr(f, "selections", path, what)):
+                g = _need(f, name, path, what)
+                sel = {k: _need(g, k, path, what)[()] for k in ("data", "data_normalised", "norm_mean", "norm_std")}
+                sel["labels"] = _text(_need(g, "selection/label", path, what)[()])
+                sel["record"] = _text(_need_attr(g["selection"], "record", path, what))
                 if "score" in g:
-                    sel["score"] = g["score/t"][()]
-                    sel["theta_mle"] = g["score/theta_mle"][()]
+                    sel["score"] = _need(g, "score/t", path, what)[()]
+                    sel["theta_mle"] = _need(g, "score/theta_mle", path, what)[()]
                 self.selections[name] = sel
 
     def data(self, selection, split=None, normalised=False):
+        if selection not in self.selections:
+            raise ValueError(f"no selection '{selection}' in this export (selections: {list(self.selections)})")
         x = self.selections[selection]["data_normalised" if normalised else "data"]
         return x if split is None else x[self.split == SPLITS[split]]
 
@@ -177,14 +365,19 @@ def load_export(path):
     return TrainingSet(path)
 
 
+def _datasets(g):
+    return {k: g[k][()] for k in g if isinstance(g[k], h5py.Dataset)}
+
+
 def load_covariance(path):
     """{selection: {mean, cov, corr, std, precision?, labels, attrs}} of a `spinflip covariance` file."""
+    what = "spinflip covariance file"
     out = {}
-    with h5py.File(path, "r") as f:
-        for name in _text(f.attrs["selections"]):
-            g = f[name]
-            d = {k: g[k][()] for k in g if isinstance(g[k], h5py.Dataset)}
-            d["labels"] = _text(g["selection/label"][()])
+    with _open(path, what) as f:
+        for name in _text(_need_attr(f, "selections", path, what)):
+            g = _need(f, name, path, what)
+            d = _datasets(g)
+            d["labels"] = _text(_need(g, "selection/label", path, what)[()])
             d["attrs"] = _attrs(g)
             out[name] = d
     return out
@@ -192,16 +385,21 @@ def load_covariance(path):
 
 def load_fisher(path):
     """{'param_names', 'param_units', 'fiducial', 'selections': {name: {fisher, fisher_inverse, sigma_marginal, …}}}."""
-    with h5py.File(path, "r") as f:
-        out = {"param_names": _text(f.attrs["param_names"]), "param_units": _text(f.attrs["param_units"]),
-               "fiducial": np.asarray(f.attrs["fiducial"]), "selections": {}}
-        for name in _text(f.attrs["selections"]):
-            g = f[name]
-            d = {k: g[k][()] for k in g if isinstance(g[k], h5py.Dataset)}
+    what = "spinflip fisher file"
+    with _open(path, what) as f:
+        out = {"param_names": _text(_need_attr(f, "param_names", path, what)),
+               "param_units": _text(_need_attr(f, "param_units", path, what)),
+               "fiducial": np.asarray(_need_attr(f, "fiducial", path, what)), "selections": {}}
+        if "param_labels" in f.attrs:
+            out["param_labels"] = _text(f.attrs["param_labels"])
+        for name in _text(_need_attr(f, "selections", path, what)):
+            g = _need(f, name, path, what)
+            d = _datasets(g)
             d["attrs"] = _attrs(g)
-            d["convergence"] = {k: g["convergence"][k][()] for k in g["convergence"]}
-            d["convergence"]["labels"] = _text(d["convergence"]["labels"])
+            c = _need(g, "convergence", path, what)
+            d["convergence"] = _datasets(c)
+            d["convergence"]["labels"] = _text(d["convergence"].get("labels", []))
             if "combined" in g:
-                d["combined"] = {k: g["combined"][k][()] for k in g["combined"]}
+                d["combined"] = _datasets(g["combined"])
             out["selections"][name] = d
     return out

@@ -15,7 +15,7 @@
 namespace spinflip::analysis {
 
 struct Design {
-  std::vector<std::string> names, units, role;
+  std::vector<std::string> names, units, labels, role;  // labels: for plots (default: names)
   std::vector<int> log;  // 1: the design samples log10 of the parameter
   Eigen::VectorXd min, max, fiducial;
   Eigen::MatrixXd points;  // n_points × n_params, physical values
@@ -111,10 +111,28 @@ struct ExportOptions : CommonOptions {
   std::optional<std::int64_t> step_index;
 };
 
+/// spinflip plot: one --select drawn against redshift (or against k / j at one
+/// redshift), across design points coloured by a parameter or as the fiducial
+/// mean ± 1σ, scenarios overlaid (docs/analysis.md, "Plots").
+struct PlotOptions {
+  std::string catalogue, output = "statistics.png";
+  std::vector<std::string> selects;  // at most one; empty: Δ² of the power kernel
+  std::string against = "z";         // "z" or "coefficient"
+  std::string by;                    // parameter colouring the design (default: the first)
+  bool fiducial = false;             // fiducial mean ± 1σ instead of the design points
+  std::vector<std::string> roles = {"training", "list"};
+  std::optional<double> at_z;        // against coefficient: the redshift (default: the middle unit)
+  std::string format;                // png or pdf (default: from the extension, else png)
+  std::string data_output;           // also keep the plotted numbers here (HDF5); empty: not kept
+  bool allow_incomplete = false;
+  std::optional<std::int64_t> point;
+};
+
 /// The verbs. Each prints its summary on stdout and writes its output file;
 /// user errors throw InputError/IoError (exit 2).
 void run_covariance(const CovarianceOptions& options);
 void run_fisher(const FisherOptions& options);
 void run_export(const ExportOptions& options);
+void run_statistic_plot(const PlotOptions& options);
 
 }  // namespace spinflip::analysis

@@ -55,6 +55,8 @@ void read_design(Catalogue::Impl& c) {
   // Optional per-parameter metadata: fall back to what the points show.
   d.units = h5::exists(f, "design/param_units") ? h5::read_strings(f, "design/param_units", p)
                                                 : std::vector<std::string>(n_params, "");
+  d.labels = h5::exists(f, "design/param_labels") ? h5::read_strings(f, "design/param_labels", p) : d.names;
+  if (d.labels.size() != n_params) d.labels = d.names;
   d.log.assign(n_params, 0);
   if (h5::exists(f, "design/param_log")) {
     const auto v = h5::read_ints(f, "design/param_log", p);

@@ -11,6 +11,8 @@
 #include <map>
 #include <sstream>
 
+#include <toml++/toml.h>
+
 #include "analysis/estimators.hpp"
 #include "analysis/internal.hpp"
 #include "core/errors.hpp"
@@ -69,8 +71,28 @@ std::int64_t fiducial_point(const Catalogue& cat, std::optional<std::int64_t> ch
   return fid.front();
 }
 
-std::vector<Selection> selections(const Catalogue& cat, const std::vector<std::string>& texts) {
+std::vector<std::string> campaign_selects(const Catalogue& cat) {
+  const std::string text = h5::attr_text(static_cast<hid_t>(cat.hdf5_file()), "campaign_text");
+  std::vector<std::string> out;
+  if (text.empty()) return out;
+  try {
+    const toml::table t = toml::parse(text);
+    if (const auto* arr = t["analysis"]["select"].as_array())
+      for (const auto& v : *arr)
+        if (auto s = v.value<std::string>()) out.push_back(*s);
+  } catch (const toml::parse_error&) {  // validated when the campaign ran; a hand-edited text just has no defaults
+  }
+  return out;
+}
+
+std::vector<Selection> selections(const Catalogue& cat, const std::vector<std::string>& given) {
   std::vector<Selection> out;
+  std::vector<std::string> texts = given;
+  if (texts.empty()) {
+    texts = campaign_selects(cat);
+    if (!texts.empty())
+      log::info("no --select given: using the {} selection(s) of the campaign's [analysis] select", texts.size());
+  }
   if (texts.empty()) out.push_back(select(cat, "", 0));
   for (std::size_t i = 0; i < texts.size(); ++i) out.push_back(select(cat, texts[i], i));
   for (std::size_t i = 0; i < out.size(); ++i)

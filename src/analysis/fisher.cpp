@@ -277,9 +277,11 @@ void run_fisher(const FisherOptions& o) {
 
   h5::Id out = h5::create_file(o.output);
   detail::write_output_header(out.get(), cat, "fisher");
-  std::vector<std::string> pnames, punits;
-  std::vector<double> pfid;
+  std::vector<std::string> pnames, punits, plabels;
+  std::vector<double> pfid, plog;
   for (auto i : st.params) {
+    plabels.push_back(des.labels[i]);
+    plog.push_back(des.log[i] ? 1.0 : 0.0);
     pnames.push_back(detail::fisher_param_name(des, i));
     punits.push_back(des.log[i] && !des.units[i].empty() ? "log10(" + des.units[i] + ")" : des.units[i]);
     double v = des.points(st.fiducial, static_cast<Eigen::Index>(i));
@@ -287,6 +289,8 @@ void run_fisher(const FisherOptions& o) {
   }
   h5::write_attr(out.get(), "param_names", pnames);
   h5::write_attr(out.get(), "param_units", punits);
+  h5::write_attr(out.get(), "param_labels", plabels);  // the campaign's labels, in physical terms
+  h5::write_attr(out.get(), "param_log", plog);        // 1: the Fisher coordinate is log10 of the parameter
   h5::write_attr(out.get(), "fiducial", pfid);
   h5::write_attr(out.get(), "fiducial_point", st.fiducial);
   h5::write_attr(out.get(), "step_index", st.step_index);

@@ -34,7 +34,11 @@ std::vector<std::size_t> done_entries(const Catalogue& cat, std::int64_t point, 
 /// The fiducial design point: the only one with role `fiducial`, or `chosen`.
 std::int64_t fiducial_point(const Catalogue& cat, std::optional<std::int64_t> chosen);
 
-/// Every --select resolved (one "all" selection when none is given).
+/// The campaign's `[analysis] select` list, read from the catalogue's campaign text (empty if none).
+std::vector<std::string> campaign_selects(const Catalogue& cat);
+
+/// Every --select resolved; none given: the campaign's `[analysis] select`,
+/// else one "all" selection.
 std::vector<Selection> selections(const Catalogue& cat, const std::vector<std::string>& texts);
 
 /// Drop columns that are NaN in every row of `reference` or constant there

@@ -65,7 +65,8 @@ Filter parse_filter(const std::string& key, const std::string& value, const std:
   Filter f;
   f.key = key;
   if (value.find(':') != std::string::npos) {
-    const auto parts = split(value, ':');
+    auto parts = split(value, ':');
+    if (!value.empty() && value.back() == ':') parts.push_back("");  // "LO:" (getline drops a last empty field)
     if (parts.size() != 2)
       throw InputError("--select '" + sel + "': " + key + "=" + value + " is not a range LO:HI");
     f.is_range = true;

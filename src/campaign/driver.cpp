@@ -171,7 +171,7 @@ struct Setup {
     L.attributes = {{"campaign_name", cfg.string("campaign.name")},
                     {"campaign_seed", cfg.integer("campaign.seed")},
                     {"fiducial_point", static_cast<std::int64_t>(fiducial_point_of(c))}};
-    for (const auto& p : c.parameters()) L.parameters.push_back({p.name, p.unit, p.log, p.min, p.max, p.fiducial});
+    for (const auto& p : c.parameters()) L.parameters.push_back({p.name, p.unit, p.log, p.min, p.max, p.fiducial, p.label});
     for (const auto& d : c.designs()) L.design_names.push_back(d.name);
     for (const auto& p : c.points())
       L.points.push_back({p.values, role_name(p.role), p.design_index, p.stencil_param, p.stencil_step_index,

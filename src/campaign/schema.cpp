@@ -80,6 +80,11 @@ void declare_keys(core::Schema& s) {
          .doc = "stencil: multiples of each parameter's step, one stencil per factor (convergence check)"});
   s.add({.path = "designs.*.file", .type = ValueType::string, .default_value = std::string(""),
          .doc = "list: CSV of points, header = parameter names, relative to the campaign file"});
+
+  s.add_table("analysis", "Defaults the analysis verbs take from the catalogue's campaign.");
+  s.add({.path = "analysis.select", .type = ValueType::string_array, .default_value = std::vector<std::string>{},
+         .doc = "selections (docs/analysis.md) that covariance, fisher and export use when no --select is given "
+                "(empty: every coefficient)"});
 }
 
 const core::Schema& campaign_schema() {

@@ -22,6 +22,7 @@
 #include <optional>
 #include <system_error>
 
+#include "catalogue/describe.hpp"
 #include "catalogue/hdf5.hpp"
 #include "core/collective.hpp"
 #include "core/errors.hpp"
@@ -74,6 +75,16 @@ Handle serial_fapl() {
   return fapl;
 }
 
+/// "design" for the group /design (H5Iget_name without the leading '/').
+std::string object_path(hid_t object) {
+  const ssize_t n = H5Iget_name(object, nullptr, 0);
+  if (n <= 0) return {};
+  std::string out(static_cast<std::size_t>(n) + 1, '\0');
+  H5Iget_name(object, out.data(), out.size());
+  out.resize(static_cast<std::size_t>(n));
+  return out.substr(out.find_first_not_of('/') == std::string::npos ? out.size() : out.find_first_not_of('/'));
+}
+
 Handle open_group(hid_t parent, const std::string& name) {
   return h5::group(SPINFLIP_H5_ID(H5Gopen2(parent, name.c_str(), H5P_DEFAULT)));
 }
@@ -116,7 +127,10 @@ class Creator {
     // No object times: they would be the only bytes that differ between runs.
     SPINFLIP_H5(H5Pset_obj_track_times(dcpl, false));
     Handle space = h5::simple_space(d);
-    return h5::dataset(SPINFLIP_H5_ID(H5Dcreate2(parent, name.c_str(), type, space, H5P_DEFAULT, dcpl, H5P_DEFAULT)));
+    Handle ds = h5::dataset(SPINFLIP_H5_ID(H5Dcreate2(parent, name.c_str(), type, space, H5P_DEFAULT, dcpl, H5P_DEFAULT)));
+    // Every dataset says what it holds (docs/catalogue.md); `values` is described by its kernel.
+    if (name != "values") annotate(ds, describe_dataset(object_path(parent) + "/" + name));
+    return ds;
   }
 
   /// Collective write of a whole dataset whose data rank 0 holds.
@@ -324,15 +338,19 @@ Catalogue Catalogue::create(const fs::path& path, const Layout& L, MPI_Comm comm
     {
       Handle g = c.group(file, "design");
       h5::write_attribute(g, "designs", L.design_names);
-      std::vector<std::string> names, units, roles;
+      std::vector<std::string> names, units, labels, roles;
       std::vector<std::int8_t> logs;
       std::vector<double> pmin, pmax, pfid;
       for (const auto& p : L.parameters) {
         names.push_back(p.name), units.push_back(p.unit), logs.push_back(p.log ? 1 : 0);
+        labels.push_back(p.label.empty() ? p.name : p.label);
         pmin.push_back(p.min), pmax.push_back(p.max), pfid.push_back(p.fiducial);
       }
       c.make_strings(g, "param_names", names, name_bytes);
       c.make_strings(g, "param_units", units, name_bytes);
+      std::size_t label_bytes = name_bytes;  // a label is free text: never cut it
+      for (const auto& l : labels) label_bytes = std::max(label_bytes, l.size() + 1);
+      c.make_strings(g, "param_labels", labels, label_bytes);
       c.make(g, "param_log", H5T_NATIVE_INT8, {np}, logs);
       c.make(g, "param_min", H5T_NATIVE_DOUBLE, {np}, pmin);
       c.make(g, "param_max", H5T_NATIVE_DOUBLE, {np}, pmax);
@@ -412,7 +430,8 @@ Catalogue Catalogue::create(const fs::path& path, const Layout& L, MPI_Comm comm
           h5::write_attribute(kg, "unit_kind", k.unit_kind);
           const hsize_t nu = k.unit_z.size(), nc = k.n_coeff;
           const double nan = std::numeric_limits<double>::quiet_NaN();
-          c.dataset(kg, "values", H5T_NATIVE_DOUBLE, {ne, nu, nc}, &nan);
+          Handle values = c.dataset(kg, "values", H5T_NATIVE_DOUBLE, {ne, nu, nc}, &nan);
+          annotate(values, describe_values(k.attributes));
           c.make(kg, "unit_freq_MHz", H5T_NATIVE_DOUBLE, {nu}, k.unit_freq_MHz);
           c.make(kg, "unit_z", H5T_NATIVE_DOUBLE, {nu}, k.unit_z);
           for (const auto& a : k.axes) {
@@ -423,6 +442,9 @@ Catalogue Catalogue::create(const fs::path& path, const Layout& L, MPI_Comm comm
             else
               c.make(kg, a.name, H5T_NATIVE_INT64, {nc}, std::get<std::vector<std::int64_t>>(a.values));
           }
+          std::vector<std::string> coeff_axes;
+          for (const auto& a : k.axes) coeff_axes.push_back(a.name);
+          attach_scales(kg, values, 3, {"unit_freq_MHz", "unit_z"}, coeff_axes);
         }
       }
     }

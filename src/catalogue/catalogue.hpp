@@ -52,6 +52,7 @@ struct ParameterInfo {
   std::string name, unit;
   bool log = false;
   double min = 0, max = 0, fiducial = 0;
+  std::string label = {};  // axis label for plots ("T_vir,min [K]"); empty: the name
 };
 
 struct PointInfo {

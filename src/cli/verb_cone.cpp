@@ -151,9 +151,16 @@ int run_cone(const ConeArgs& a) {
   h5::write_attribute(file, "seed", std::vector<std::int64_t>{static_cast<std::int64_t>(key.campaign_seed),
                                                              static_cast<std::int64_t>(key.point),
                                                              static_cast<std::int64_t>(key.realisation)});
-  std::vector<std::string> names;
-  for (const auto& p : c.parameters()) names.push_back(p.name);
+  std::vector<std::string> names, labels, units;
+  for (const auto& p : c.parameters()) {
+    names.push_back(p.name);
+    labels.push_back(p.label.empty() ? p.name : p.label);
+    units.push_back(p.unit);
+  }
   h5::write_attribute(file, "param_names", names);
+  h5::write_attribute(file, "param_labels", labels);  // for the preview's title
+  h5::write_attribute(file, "param_units", units);
+  h5::write_attribute(file, "role", campaign::role_name(c.points()[static_cast<std::size_t>(a.point)].role));
   h5::write_attribute(file, "params", c.points()[static_cast<std::size_t>(a.point)].values);
   h5::write_attribute(file, "cell_mpc", cone.cell_mpc);
   file.close();

@@ -11,6 +11,7 @@
 #include <iostream>
 #include <thread>
 
+#include "catalogue/describe.hpp"
 #include "cli/verbs.hpp"
 #include "core/errors.hpp"
 #include "core/log.hpp"
@@ -230,6 +231,20 @@ int run_measure(const std::string& input, const std::string& stats_file, const s
         const auto& iv = std::get<std::vector<std::int64_t>>(axis.values);
         write_dataset(group, axis.name, iv, {iv.size()}, H5T_NATIVE_INT64);
       }
+    }
+    {  // self-describing: units and a description on every dataset, axes as dimension scales
+      const std::string k_units = cell_mpc > 0 ? "Mpc^-1" : "rad/pixel";
+      std::vector<std::string> coeff_axes;
+      for (const auto& axis : k->axes(g)) coeff_axes.push_back(axis.name);
+      for (const auto& name : coeff_axes) {
+        H5Id ds(H5Dopen2(group, name.c_str(), H5P_DEFAULT), H5Dclose, output + ": cannot reopen " + name);
+        catalogue::annotate(ds, catalogue::describe_dataset(name, k_units));
+      }
+      H5Id ui(H5Dopen2(group, "unit_index", H5P_DEFAULT), H5Dclose, output + ": cannot reopen unit_index");
+      catalogue::annotate(ui, catalogue::describe_dataset("unit_index", k_units));
+      H5Id vals(H5Dopen2(group, "values", H5P_DEFAULT), H5Dclose, output + ": cannot reopen values");
+      catalogue::annotate(vals, catalogue::describe_values(k->attributes()));
+      catalogue::attach_scales(group, vals, 2, {"unit_index"}, coeff_axes);
     }
     for (const auto& [name, value] : k->attributes()) write_attribute(group, name, value);
     write_attribute(group, "unit", std::string(per_slice ? "slice along axis 2" : cube ? "whole cube" : "whole slice"));

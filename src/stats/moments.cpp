@@ -72,9 +72,11 @@ class MomentsKernel final : public Kernel {
   }
 
   Attributes attributes() const override {
+    // One name per quantity value the coefficients carry: the histogram's only when it has bins.
+    std::vector<std::string> names{"mean", "variance", "skewness", "excess_kurtosis"};
+    if (bins() > 0) names.push_back("histogram_fraction");
     return {{"kernel", std::string("one-point moments")},
-            {"quantity_names",
-             std::vector<std::string>{"mean", "variance", "skewness", "excess_kurtosis", "histogram_fraction"}},
+            {"quantity_names", names},
             {"histogram_edges", edges_},
             {"kurtosis_convention", std::string("excess (m4/m2^2 - 3), biased estimators")}};
   }

@@ -69,7 +69,7 @@ void declare_keys(core::Schema& s) {
          .doc = "geometric bin edges on both axes (else linear)"});
 
   const std::string w = "stats.scattering";
-  s.add_table(w, "Wavelet scattering coefficients S0, S1, S2 of slices (Morlet/Gabor filters, DESIGN.md §6).");
+  s.add_table(w, "Wavelet scattering coefficients S0, S1, S2 of slices (Gabor filters, docs/design.md §6).");
   s.add({.path = w + ".scales", .type = ValueType::integer, .default_value = std::int64_t{5}, .min = 1, .max = 16,
          .doc = "number of dyadic scales J (a slice needs at least 2^J cells per axis)"});
   s.add({.path = w + ".orientations", .type = ValueType::integer, .default_value = std::int64_t{8}, .min = 1,

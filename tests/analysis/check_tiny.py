@@ -42,6 +42,46 @@ fr = sc.load_fisher(fis)
 check(all(np.isfinite(fr["selections"][k]["sigma_marginal"]).all() for k in ("P", "S1")), "finite Fisher errors")
 check(all(n in p.stdout for n in fr["param_names"]), "table names every parameter")
 
+# Without any --select or --shrink: the campaign's [analysis] select defaults (jobs/tiny).
+cov_d, fis_d = os.path.join(d, "cov_default.h5"), os.path.join(d, "fisher_default.h5")
+p = run("covariance", cat, "--no-plot", "-o", cov_d)
+cv = sc.load_covariance(cov_d)
+check(sorted(cv) == ["S1_clean", "delta2_noisy"] and all(np.isfinite(v["precision"]).all() for v in cv.values()),
+      f"covariance with no flags: the campaign's selections, inverted ({sorted(cv)})")
+p = run("fisher", cat, "--no-plot", "-o", fis_d)
+fd = sc.load_fisher(fis_d)
+check(all(np.isfinite(fd["selections"][k]["sigma_marginal"]).all() for k in ("S1_clean", "delta2_noisy")),
+      "fisher with no flags: finite errors for the campaign's selections")
+check(fd.get("param_labels") == ["ζ", "T_vir,min [K]"], f"fisher output carries the campaign's labels {fd.get('param_labels')}")
+
+# spinflip plot with its defaults (Δ² against z across the training points) and the fiducial band.
+png = os.path.join(d, "d2.png")
+run("plot", cat, "-o", png)
+run("plot", cat, "--fiducial", "-s", "kernel=scattering;order=1", "-o", os.path.join(d, "s1.pdf"))
+with open(png, "rb") as fh:
+    check(fh.read(8) == b"\x89PNG\r\n\x1a\n", "plot wrote a PNG (ISO/IEC 15948 signature)")
+
+# The catalogue describes itself (written by 2 ranks with parallel HDF5), and the Python
+# reader's select() gives what h5py reads.
+with h5py.File(cat) as g:
+    bare = []
+    g.visititems(lambda n, o: bare.append(n) if isinstance(o, h5py.Dataset) and "units" not in o.attrs else None)
+    check(not bare, f"every dataset has units ({bare[:4]})")
+    v = g["stats/noisy/power/values"]
+    check(set(v.dims[2].keys()) == {"quantity", "k_lo", "k_hi", "k_mean", "n_modes"}, "power axes are dimension scales")
+    mq = g["stats/clean/moments/quantity"][()]
+    check(len(g["stats/clean/moments"].attrs["quantity_names"]) == len(set(mq.tolist())),
+          "one moments quantity name per quantity present")
+    uz = g["stats/noisy/power/unit_z"][()]
+    ref = g["stats/noisy/power/values"][()]
+    role = np.array([r.decode().rstrip("\x00 ") if isinstance(r, bytes) else r for r in g["design/role"][()]])
+    tr = np.flatnonzero((role[g["entries/point"][()]] == "training") & (g["entries/status"][()] == 1))
+    q = g["stats/noisy/power/quantity"][()]
+with sc.open_catalogue(cat) as c:
+    s = c.select("noisy", "power", role="training", z=8.5, quantity="delta2", as_xarray=False)
+u = int(np.argmin(np.abs(uz - 8.5)))
+check(np.array_equal(s.values, ref[tr][:, u, q == 1], equal_nan=True), "select(noisy, power, training, z=8.5, delta2) == h5py")
+
 exp = os.path.join(d, "train.h5")
 run("export", cat, "-s", "name=P;kernel=power;quantity=0", "-o", exp)
 ts = sc.load_export(exp)

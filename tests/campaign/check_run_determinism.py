@@ -32,7 +32,7 @@ with tempfile.TemporaryDirectory() as tmp:
         paths[ranks] = os.path.join(tmp, f"np{ranks}.h5")
         p = spinflip("run", TINY, "-o", paths[ranks], ranks=ranks)
         check(p.returncode == 0, f"run at {ranks} ranks exits 0 ({p.returncode}: {p.stderr[-2000:]})")
-        check("finished: 18 entries run, 18 done" in p.stderr, f"run at {ranks} ranks reports all 18 entries done")
+        check("finished: 26 entries run, 26 done" in p.stderr, f"run at {ranks} ranks reports all 26 entries done")
     for ranks in (2, 4):
         diff = compare(paths[1], paths[ranks])
         check(not diff, f"1 vs {ranks} ranks: {diff}")
@@ -88,7 +88,7 @@ with tempfile.TemporaryDirectory() as tmp:
         xh, tb = f["cones/history/x_hi"][point0], f["cones/history/mean_tb_mK"][point0]
 
     progress = json.load(open(paths[1] + ".progress.json"))
-    check(progress["state"] == "finished" and progress["done"] == 18 and progress["pending"] == 0,
+    check(progress["state"] == "finished" and progress["done"] == 26 and progress["pending"] == 0,
           f"progress file says finished: {progress}")
 
     cone = os.path.join(tmp, "cone.h5")

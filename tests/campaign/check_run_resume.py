@@ -101,7 +101,7 @@ with tempfile.TemporaryDirectory() as tmp:
     #    signal surely lands while entries remain.
     longer = os.path.join(tmp, "longer.toml")
     text = open(TINY).read().replace("progress_interval_s = 2", "progress_interval_s = 0.2")
-    text = text.replace('kind = "fiducial"\nrealisations = 4', 'kind = "fiducial"\nrealisations = 40')
+    text = text.replace('kind = "fiducial"\nrealisations = 12', 'kind = "fiducial"\nrealisations = 40')
     check("realisations = 40" in text and "progress_interval_s = 0.2" in text, "longer tiny campaign made")
     open(longer, "w").write(text)
     usr = os.path.join(tmp, "usr1.h5")
@@ -137,7 +137,7 @@ with tempfile.TemporaryDirectory() as tmp:
     #    entries are done.
     many = os.path.join(tmp, "many.toml")
     text = open(TINY).read().replace("progress_interval_s = 2", "progress_interval_s = 0.1")
-    text = text.replace('kind = "fiducial"\nrealisations = 4', 'kind = "fiducial"\nrealisations = 300')
+    text = text.replace('kind = "fiducial"\nrealisations = 12', 'kind = "fiducial"\nrealisations = 300')
     check("realisations = 300" in text, "kill campaign made")
     open(many, "w").write(text)
     many_ref = os.path.join(tmp, "many_ref.h5")

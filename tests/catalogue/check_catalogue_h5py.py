@@ -93,5 +93,24 @@ for ranks in (1, 2):
             check(np.array_equal(p["k_lo"][()], [0.1, 0.2, 0.4, 0.8]), "float axis")
             check(s["clean/one_point"].attrs["unit_kind"] == "slice", "slice unit kind")
 
+            # Self-describing (docs/catalogue.md): units and a description on every dataset,
+            # the axes attached to `values` as HDF5 dimension scales, read through h5py's dims API.
+            undescribed = []
+            f.visititems(lambda name, o: undescribed.append(name) if isinstance(o, h5py.Dataset) and not (
+                isinstance(o.attrs.get("units"), str) and o.attrs.get("description")) else None)
+            check(not undescribed, f"units and description on every dataset (missing: {undescribed[:5]})")
+            check(f["entries/wall_time_s"].attrs["units"] == "s" and f["cones/history/mean_tb_mK"].attrs["units"] == "mK",
+                  "units of timings and temperatures")
+            check(p["k_lo"].attrs["units"] == "Mpc^-1" and p["n_modes"].attrs["units"] == "1", "axis units")
+            check([s_.decode() if isinstance(s_, bytes) else s_ for s_ in d["param_labels"][()]] == ["zeta", "r_mfp"],
+                  "param_labels default to the names")
+            for scen, kern in (("clean", "power"), ("noisy", "power"), ("clean", "one_point")):
+                v = s[scen][kern]["values"]
+                check([dim.label for dim in v.dims] == ["entry", "unit", "coefficient"], f"{scen}/{kern} dimension labels")
+                check(set(v.dims[1].keys()) == {"unit_freq_MHz", "unit_z"}, f"{scen}/{kern} unit scales")
+                axes = {"power": {"k_lo", "n_modes"}, "one_point": {"moment"}}[kern]
+                check(set(v.dims[2].keys()) == axes, f"{scen}/{kern} coefficient scales {list(v.dims[2].keys())}")
+                check(np.array_equal(v.dims[1]["unit_z"][()], s[scen][kern]["unit_z"][()]), f"{scen}/{kern} scale data")
+
 print(f"{0 if failures else 1} passed, {len(failures)} failed")
 sys.exit(1 if failures else 0)

@@ -91,6 +91,20 @@ with h5py.File(out, "r") as h:
           "scattering group carries reduce/normalise attributes")
     check(list(h.attrs["input_shape"]) == [16, 16, 5], "root attribute input_shape")
     check(h["slice_power"]["k_lo"].shape == (8,), "axis datasets are n_coeff long")
+    # Self-describing like the catalogue (docs/catalogue.md), read through h5py's dimension-scale API.
+    sp = h["slice_power"]
+    check(all("units" in sp[k].attrs and sp[k].attrs["description"] for k in sp), "units and description on every dataset")
+    check(sp["values"].attrs["units"].startswith("mK^2 Mpc^2 (quantity 0, P)"), f"2D power units {sp['values'].attrs['units']}")
+    check([dim.label for dim in sp["values"].dims] == ["unit", "coefficient"], "dimension labels")
+    check(sp["k_lo"].attrs["units"] == "rad/pixel", "no --cell-mpc: wavenumbers in radians per pixel")
+    check(set(sp["values"].dims[1].keys()) == {"quantity", "k_lo", "k_hi", "k_mean", "n_modes"}, "k axes are scales")
+    check(list(h["moments"].attrs["quantity_names"]) == ["mean", "variance", "skewness", "excess_kurtosis"],
+          "moments without a histogram name their four quantities")
+r, out = run(path("cube.npy"), "[stats.moments]\nhistogram_edges = [-2.0, 0.0, 2.0]\n")
+with h5py.File(out, "r") as h:
+    q, names = h["moments"]["quantity"][()], list(h["moments"].attrs["quantity_names"])
+    check(names[-1] == "histogram_fraction" and len(names) == len(set(q.tolist())) == 5,
+          f"moments with a histogram: one name per quantity present ({names})")
 
 # --- user errors: exit status 2, one line
 expect_error("2D array with a 3D kernel", path("c.npy"), "3D chunks",

@@ -29,6 +29,12 @@ std::string take(char* s) {
   return out;
 }
 
+/// A catalogue's folder must exist already: its absence is the catalogue's error to report.
+bool beside_folder_exists(const std::filesystem::path& file) {
+  const auto dir = file.parent_path();
+  return dir.empty() || std::filesystem::is_directory(dir);
+}
+
 /// Broadcast a string from root (collective).
 std::string bcast(std::string text, int root, MPI_Comm comm) {
   unsigned long long n = text.size();
@@ -149,7 +155,6 @@ std::string read_wisdom_file(const std::filesystem::path& file) {
 void write_wisdom_file(const std::filesystem::path& file, const std::string& text) {
   namespace fs = std::filesystem;
   std::error_code ec;
-  if (file.has_parent_path()) fs::create_directories(file.parent_path(), ec);
   // Unique per process: concurrent runs may write the same cache.
   const fs::path partial = file.string() + ".partial." + std::to_string(::getpid());
   {
@@ -209,7 +214,7 @@ SharedWisdom share_wisdom(MPI_Comm world, const std::optional<std::filesystem::p
       // Nothing new: keep the text as read (FFTW's export of the same wisdom need
       // not be the same text), so runs from one wisdom record one checksum.
       used = text;
-      if (own && from_own == 0) write_wisdom_file(*own, used);
+      if (own && from_own == 0 && beside_folder_exists(*own)) write_wisdom_file(*own, used);
       return;
     }
     used = wisdom_text();
@@ -227,12 +232,14 @@ SharedWisdom share_wisdom(MPI_Comm world, const std::optional<std::filesystem::p
       }
       used = wisdom_text();
       try {
+        std::error_code ec;
+        fs::create_directories(cache->parent_path(), ec);  // the user cache folder may be new
         write_wisdom_file(*cache, used);
       } catch (const IoError& e) {
         log::warn("fft: wisdom cache not kept: {}", e.what());  // the run itself does not need it
       }
     }
-    if (own) write_wisdom_file(*own, used);
+    if (own && beside_folder_exists(*own)) write_wisdom_file(*own, used);
   });
   shared.text = bcast(std::move(used), 0, world);
   use_wisdom(shared.text, "world rank 0's wisdom");

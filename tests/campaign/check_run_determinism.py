@@ -61,9 +61,11 @@ with tempfile.TemporaryDirectory() as tmp:
     g2 = os.path.join(tmp, "g2.h5")
     p = spinflip("run", TINY, "-o", g2, "--group-size", "2", ranks=2)
     check(p.returncode == 0, f"group size 2 exits 0 ({p.stderr[-2000:]})")
-    # Distributed vs serial FFT: same values up to float rounding (DESIGN.md §3);
-    # 1e-6 relative is far above double rounding and far below any physical change.
-    diff = compare(paths[1], g2, rtol=1e-6, atol=1e-12)
+    # Distributed vs serial FFT: same values up to float rounding (DESIGN.md §3),
+    # with the tolerance of the different-wisdom check above (another plan of the
+    # same float32 transforms: 2e-6 relative, plus 2e-6 of a dataset's scale for
+    # coefficients that are the rounding residue of an exact zero).
+    diff = compare(paths[1], g2, rtol=2e-6, atol=0.0, scale_atol=2e-6)
     check(not diff, f"group size 1 vs 2: {diff}")
 
     with h5py.File(paths[1], "r") as f:

@@ -38,9 +38,16 @@ def nu_to_z(nu):
 
 def plain_log_ticks(axis):
     """Decimal labels (0.2, 0.5, 1) on a log axis instead of 2×10⁻¹."""
-    axis.set_major_locator(matplotlib.ticker.LogLocator(subs=(1.0, 2.0, 5.0)))
+    axis.set_major_locator(matplotlib.ticker.LogLocator(subs=(1.0, 2.0, 3.0, 5.0)))
     axis.set_major_formatter(matplotlib.ticker.FuncFormatter(lambda v, _: f"{v:g}"))
     axis.set_minor_formatter(matplotlib.ticker.NullFormatter())
+
+
+def pretty(label):
+    """Units as the files write them (mK^2 Mpc^3) as a reader expects them (mK² Mpc³)."""
+    for a, b in (("^-1", "⁻¹"), ("^2", "²"), ("^3", "³"), ("^4", "⁴"), ("^6", "⁶")):
+        label = label.replace(a, b)
+    return label
 
 
 def frequency_axis(ax):
@@ -125,7 +132,7 @@ def main(src, dst, fmt):
             ax.set_xlim(lo - 0.5, hi + 0.5)
         ax.set_title(titles[p], fontsize=8.5)
         ax.set_xlabel(xlabels[p], fontsize=8)
-        ax.set_ylabel(ylabels[p], fontsize=8)
+        ax.set_ylabel(pretty(ylabels[p]), fontsize=8)
         ax.tick_params(labelsize=7)
         ax.grid(alpha=0.25, lw=0.5)
         if against_z:

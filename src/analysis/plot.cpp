@@ -140,26 +140,10 @@ struct RemoveOnExit {
   }
 };
 
-}  // namespace
-
-void run_statistic_plot(const PlotOptions& o) {
-  Catalogue cat(o.catalogue);
+/// The entries drawn: the fiducial realisations (`fid` set), or every done entry of the roles asked.
+std::vector<std::size_t> plot_entries(const Catalogue& cat, const PlotOptions& o, std::int64_t& fid) {
   const Design& des = cat.design();
-  if (o.selects.size() > 1)
-    throw InputError("spinflip plot takes one --select (scenarios are overlaid on the same panels); got " +
-                     std::to_string(o.selects.size()));
-  if (o.against != "z" && o.against != "coefficient")
-    throw InputError("--against " + o.against + " is not allowed (allowed: z, coefficient)");
-  std::string format = o.format;
-  const std::string ext = std::filesystem::path(o.output).extension().string();
-  if (format.empty()) format = ext == ".pdf" ? "pdf" : "png";
-  if (format != "png" && format != "pdf")
-    throw InputError("--format " + format + " is not allowed (allowed: png, pdf)");
-  Selection sel = select(cat, o.selects.empty() ? default_select(cat) : o.selects.front(), 0);
-
-  // Which entries: the fiducial realisations, or every done entry of the roles asked.
   std::vector<std::size_t> entries;
-  std::int64_t fid = -1;
   if (o.fiducial) {
     fid = detail::fiducial_point(cat, o.point);
     entries = detail::done_entries(cat, fid, o.allow_incomplete, "the fiducial point");
@@ -182,6 +166,51 @@ void run_statistic_plot(const PlotOptions& o) {
       }() + " (done entries have roles: " + (list.empty() ? "none" : list) + ")");
     }
   }
+  return entries;
+}
+
+/// Against the coefficients: keep, per kernel block, the unit nearest `at_z` (default: the middle
+/// of the selected units).
+void keep_nearest_units(const Catalogue& cat, Selection& sel, std::optional<double> at_z) {
+  std::vector<double> zs;
+  for (const auto& el : sel.elements) {
+    const auto& b = cat.blocks()[el.block];
+    if (b.unit_z.size() == b.n_units) zs.push_back(b.unit_z[el.unit]);
+  }
+  if (zs.empty()) throw InputError(cat.path() + ": the selected kernels have no unit_z, so --against coefficient cannot pick a redshift");
+  std::sort(zs.begin(), zs.end());
+  const double target = at_z ? *at_z : zs[zs.size() / 2];
+  std::map<std::size_t, std::size_t> nearest;  // block → unit
+  for (const auto& el : sel.elements) {
+    const auto& b = cat.blocks()[el.block];
+    auto [it, fresh] = nearest.try_emplace(el.block, el.unit);
+    if (!fresh && std::abs(b.unit_z[el.unit] - target) < std::abs(b.unit_z[it->second] - target)) it->second = el.unit;
+  }
+  std::vector<Element> kept;
+  for (const auto& el : sel.elements)
+    if (nearest.at(el.block) == el.unit) kept.push_back(el);
+  sel.elements = std::move(kept);
+}
+
+}  // namespace
+
+void run_statistic_plot(const PlotOptions& o) {
+  Catalogue cat(o.catalogue);
+  const Design& des = cat.design();
+  if (o.selects.size() > 1)
+    throw InputError("spinflip plot takes one --select (scenarios are overlaid on the same panels); got " +
+                     std::to_string(o.selects.size()));
+  if (o.against != "z" && o.against != "coefficient")
+    throw InputError("--against " + o.against + " is not allowed (allowed: z, coefficient)");
+  std::string format = o.format;
+  const std::string ext = std::filesystem::path(o.output).extension().string();
+  if (format.empty()) format = ext == ".pdf" ? "pdf" : "png";
+  if (format != "png" && format != "pdf")
+    throw InputError("--format " + format + " is not allowed (allowed: png, pdf)");
+  Selection sel = select(cat, o.selects.empty() ? default_select(cat) : o.selects.front(), 0);
+
+  std::int64_t fid = -1;
+  const std::vector<std::size_t> entries = plot_entries(cat, o, fid);
   std::size_t by = 0;
   if (!o.by.empty()) {
     auto it = std::find(des.names.begin(), des.names.end(), o.by);
@@ -194,27 +223,7 @@ void run_statistic_plot(const PlotOptions& o) {
   }
   if (des.names.empty() && !o.fiducial) throw InputError(cat.path() + " has no parameters to colour the design by");
 
-  // At a chosen redshift: keep, per block, the unit nearest to it (default: the middle of the selected units).
-  if (o.against == "coefficient") {
-    std::vector<double> zs;
-    for (const auto& el : sel.elements) {
-      const auto& b = cat.blocks()[el.block];
-      if (b.unit_z.size() == b.n_units) zs.push_back(b.unit_z[el.unit]);
-    }
-    if (zs.empty()) throw InputError(cat.path() + ": the selected kernels have no unit_z, so --against coefficient cannot pick a redshift");
-    std::sort(zs.begin(), zs.end());
-    const double target = o.at_z ? *o.at_z : zs[zs.size() / 2];
-    std::map<std::size_t, std::size_t> nearest;  // block → unit
-    for (const auto& el : sel.elements) {
-      const auto& b = cat.blocks()[el.block];
-      auto [it, fresh] = nearest.try_emplace(el.block, el.unit);
-      if (!fresh && std::abs(b.unit_z[el.unit] - target) < std::abs(b.unit_z[it->second] - target)) it->second = el.unit;
-    }
-    std::vector<Element> kept;
-    for (const auto& el : sel.elements)
-      if (nearest.at(el.block) == el.unit) kept.push_back(el);
-    sel.elements = std::move(kept);
-  }
+  if (o.against == "coefficient") keep_nearest_units(cat, sel, o.at_z);
 
   // Panels and series: one panel per coefficient (against z) or per family
   // (against k or j); within a panel one series per scenario.

@@ -611,7 +611,6 @@ catalogue::Layout layout_of(const Campaign& campaign) { return Setup(campaign).l
 
 RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
   const double t_start = MPI_Wtime();
-  install_stop_handlers();  // a signal during set-up stops the run before its first entry
   const int wrank = rank_of(world), wsize = size_of(world);
   const core::Config& cfg = c.config();
   const int g = options.group_size ? *options.group_size : static_cast<int>(cfg.integer("campaign.group_size"));
@@ -662,6 +661,10 @@ RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
               cfg.string("campaign.name"), statuses.size(), done0, statuses.size() - done0 - todo.size(),
               todo.size(), output.string(), exists ? "resumed" : "created", wsize, n_groups, g);
 
+  // From here a signal is a clean, resumable stop. Before, nothing this run
+  // made needs one: the default action ends the process at once (a catalogue
+  // being created is still <catalogue>.partial).
+  install_stop_handlers();
   Counter counter(world);
   std::unique_ptr<Progress> progress;
   if (wrank == 0)
@@ -736,7 +739,10 @@ RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
     if (r.stopped_early)
       log::info("stopped early{}{}: {} entries run, {} done, {} failed, {} pending; the catalogue is resumable: run "
                 "the same command again to continue",
-                any_sig ? " on " : " after --max-entries", any_sig ? signal_name(any_sig) : std::string(),
+                any_sig ? " on " : " after --max-entries",
+                any_sig == SIGTERM ? "SIGTERM (from the scheduler, or from mpiexec on Ctrl-C)"
+                : any_sig          ? signal_name(any_sig)
+                                   : std::string(),
                 r.ran, r.done, r.failed, r.pending);
     if (r.stopped_early && any_abandoned)
       log::info("entries in progress at the signal were abandoned and stay pending");

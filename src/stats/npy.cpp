@@ -5,6 +5,7 @@
 #include <cstdint>
 #include <cstring>
 #include <fstream>
+#include <system_error>
 
 #include "core/errors.hpp"
 #include "core/printable.hpp"
@@ -86,6 +87,13 @@ NpyArray read_npy(const std::filesystem::path& path) {
   } else {
     throw InputError(where + ": .npy format version " + std::to_string(major) + " is not supported (1, 2 or 3)");
   }
+  // Sizes from the file are checked against its length before anything is
+  // allocated (a damaged length field must not ask for gigabytes).
+  std::error_code ec;
+  const std::uintmax_t file_size = std::filesystem::file_size(path, ec);
+  const std::uintmax_t header_end = static_cast<std::uintmax_t>(in.tellg()) + header_len;
+  if (ec || header_end > file_size)
+    throw InputError(where + ": truncated .npy header (needs " + std::to_string(header_len) + " bytes)");
   std::string header(header_len, '\0');
   if (!in.read(header.data(), header_len))
     throw InputError(where + ": truncated .npy header (needs " + std::to_string(header_len) + " bytes)");
@@ -101,8 +109,15 @@ NpyArray read_npy(const std::filesystem::path& path) {
   const std::size_t width = t[2] == '4' ? 4 : 8;
   const bool swap = (t[0] == '>' && std::endian::native == std::endian::little) ||
                     (t[0] == '<' && std::endian::native == std::endian::big);
-  std::size_t n = 1;
-  for (auto s : a.shape) n *= s;
+  const std::uintmax_t data_bytes = file_size - header_end;
+  std::uintmax_t need = width;
+  bool overflow = false;
+  for (auto s : a.shape) overflow |= __builtin_mul_overflow(need, static_cast<std::uintmax_t>(s), &need);
+  if (overflow || need > data_bytes)
+    throw InputError(where + ": data truncated: shape needs " +
+                     (overflow ? std::string("more than 2^64") : std::to_string(need)) + " bytes, file has " +
+                     std::to_string(data_bytes));
+  const std::size_t n = need / width;
   std::vector<unsigned char> raw(n * width);
   if (!in.read(reinterpret_cast<char*>(raw.data()), static_cast<std::streamsize>(raw.size())))
     throw InputError(where + ": data truncated: shape needs " + std::to_string(raw.size()) + " bytes, file has " +

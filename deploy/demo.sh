@@ -49,7 +49,7 @@ step "training set for an emulator (split by design point) -> $out/train.h5"
     --select 'name=deep;kernel=power,scattering;quantity=0;order=1;scenario=deep;every=3'
 
 step "a Slurm job chain for the same campaign -> $out/jobs"
-"$spinflip" jobscript "$campaign" --walltime 01:00:00 --chain 4 --output "$out/jobs" -o "$out/demo.h5"
+"$spinflip" jobscript "$campaign" --walltime 01:00:00 --chain 4 -o "$out/jobs/" --catalogue "$out/demo.h5"
 
 echo
 echo "demo finished. Pictures: $(ls "$out"/*.png 2>/dev/null | tr '\n' ' ')"

@@ -21,6 +21,7 @@ packages=(
   libgtest-dev libgmock-dev libbenchmark-dev
   libtomlplusplus-dev libcli11-dev libeigen3-dev librandom123-dev
   libssl-dev
+  clang-16 libclang-rt-16-dev  # deploy/hardening.sh: sanitizers and libFuzzer (clang 16 reads libstdc++ 12's <source_location>)
   python3 python3-numpy python3-scipy python3-h5py python3-astropy python3-matplotlib
   python3-setuptools python3-wheel python3-venv python3-pip
 )

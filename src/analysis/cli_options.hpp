@@ -24,8 +24,10 @@ inline void add_common_options(CLI::App& sub, CommonOptions& o, CliCommon& c, bo
   sub.add_flag("--allow-incomplete", o.allow_incomplete, "use the done entries even if some are still pending");
   sub.add_option("--point", c.point, "fiducial design point, when the design has several");
   if (with_plot) {
-    sub.add_flag("!--no-plot", o.plot, "do not draw the picture");
-    sub.add_option("--plot", o.plot_path, "where to write the picture (default: beside the output)");
+    // A callback flag, so the help shows no CLI11 default text ("{false}").
+    sub.add_flag_callback("--no-plot", [&o] { o.plot = false; }, "do not draw the picture (PNG)");
+    sub.add_option("--plot", o.plot_path,
+                   "where to write the picture (default: the output's name with _corr.png or _corner.png)");
   }
 }
 

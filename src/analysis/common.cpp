@@ -153,11 +153,44 @@ void Transformer::fit(const Eigen::MatrixXd& fiducial) {
   sd = mc.cov.diagonal().array().sqrt();
 }
 
-void Transformer::apply(Eigen::MatrixXd& X, const std::string& what) const {
+CellNamer cell_namer(const Catalogue& cat, const Selection& sel, const std::vector<std::size_t>& entries) {
+  return [&cat, &sel, &entries, labels = element_labels(cat, sel)](Eigen::Index r, Eigen::Index c) {
+    const std::size_t e = entries.at(static_cast<std::size_t>(r));
+    return "entry " + std::to_string(e) + " (point " + std::to_string(cat.entry_point()[e]) + ", realisation " +
+           std::to_string(cat.entry_realisation()[e]) + "), coefficient " + labels.at(static_cast<std::size_t>(c));
+  };
+}
+
+std::string nan_cause(const Catalogue& cat, const Selection& sel, Eigen::Index col) {
+  const auto& el = sel.elements.at(static_cast<std::size_t>(col));
+  const auto& blk = cat.blocks()[el.block];
+  if (auto it = blk.axes.find("n_modes"); it != blk.axes.end() && el.coeff < it->second.size() && it->second[el.coeff] == 0)
+    return "an empty bin: the instrument kept no Fourier mode there (n_modes=0)";
+  if (blk.kernel.find("moments") != std::string::npos)
+    return "a moment of a constant unit: skewness and kurtosis are undefined when the variance is 0 "
+           "(e.g. a fully ionized or fully neutral slice)";
+  return "the kernel " + blk.kernel + " gave no finite value for this unit";
+}
+
+void Transformer::apply(Eigen::MatrixXd& X, const std::string& what, const CellNamer& where) const {
   if (kind == Transform::log) {
-    if ((X.array() <= 0).any())
-      throw InputError("--transform log: " + what + " has coefficients ≤ 0; select positive ones only "
-                       "(e.g. power spectra, scattering S1/S2) or use --transform standardise");
+    const Eigen::Index n_bad = (X.array() <= 0).count();
+    if (n_bad > 0) {
+      std::string first;
+      if (where) {
+        for (Eigen::Index c = 0; c < X.cols() && first.empty(); ++c)
+          for (Eigen::Index r = 0; r < X.rows(); ++r)
+            if (X(r, c) <= 0) {
+              std::ostringstream v;
+              v << X(r, c);
+              first = ", first " + where(r, c) + " = " + v.str();
+              break;
+            }
+      }
+      throw InputError("--transform log: " + what + " has " + std::to_string(n_bad) + " values ≤ 0" + first +
+                       "; select positive ones only (e.g. power spectra, scattering S1/S2) or use --transform "
+                       "standardise");
+    }
     X = X.array().log().matrix();
   } else if (kind == Transform::standardise) {
     X = ((X.rowwise() - mean.transpose()).array().rowwise() / sd.transpose().array()).matrix();

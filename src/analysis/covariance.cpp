@@ -7,6 +7,7 @@
 #include "analysis/internal.hpp"
 #include "core/errors.hpp"
 #include "core/log.hpp"
+#include "core/output_file.hpp"
 
 namespace spinflip::analysis {
 using detail::flat;
@@ -19,7 +20,8 @@ void run_covariance(const CovarianceOptions& o) {
   if (entries.size() < 2)
     throw InputError(cat.path() + ": fiducial point " + std::to_string(fid) + " has " + std::to_string(entries.size()) +
                      " done realisations; a covariance needs at least 2");
-  h5::Id out = h5::create_file(o.output);
+  core::OutputFile target(o.output);  // written whole or not at all
+  h5::Id out = h5::create_memory_file();
   detail::write_output_header(out.get(), cat, "covariance");
   h5::write_attr(out.get(), "fiducial_point", fid);
   std::vector<std::string> names;
@@ -28,7 +30,7 @@ void run_covariance(const CovarianceOptions& o) {
     detail::drop_degenerate(cat, sel, X, {});
     detail::Transformer tr{o.transform, {}, {}};
     tr.fit(X);
-    tr.apply(X, "selection '" + sel.name + "'");
+    tr.apply(X, "selection '" + sel.name + "'", detail::cell_namer(cat, sel, entries));
     const std::size_t n = static_cast<std::size_t>(X.rows()), p = static_cast<std::size_t>(X.cols());
     const auto mc = mean_cov(X);
     Eigen::MatrixXd cov = mc.cov;
@@ -85,7 +87,7 @@ void run_covariance(const CovarianceOptions& o) {
     if (o.shrink) std::printf("  Ledoit-Wolf shrinkage intensity %.4f\n", intensity);
   }
   h5::write_attr(out.get(), "selections", names);
-  out.reset();  // the plot script reads the closed file
+  h5::save_file(out, target);  // the plot script reads the written file
   std::printf("wrote %s\n", o.output.c_str());
   std::fflush(stdout);
   if (o.plot) {

@@ -11,6 +11,7 @@
 #include "analysis/internal.hpp"
 #include "core/errors.hpp"
 #include "core/log.hpp"
+#include "core/output_file.hpp"
 
 namespace spinflip::analysis {
 
@@ -66,7 +67,8 @@ void run_export(const ExportOptions& o) {
     }
   }
 
-  h5::Id out = h5::create_file(o.output);
+  core::OutputFile target(o.output);  // written whole or not at all
+  h5::Id out = h5::create_memory_file();
   detail::write_output_header(out.get(), cat, "training-set");
   h5::write_attr(out.get(), "split_fractions", o.fractions);
   h5::write_attr(out.get(), "split_seed", static_cast<std::int64_t>(o.seed));
@@ -97,14 +99,29 @@ void run_export(const ExportOptions& o) {
   for (auto s : e_split) ++counts[s];
   for (auto& sel : sels) {
     Eigen::MatrixXd X = cat.load(sel, entries);
-    if (X.hasNaN())
-      throw InputError("--select '" + sel.text + "': some exported coefficients are NaN (e.g. empty power-spectrum "
-                       "bins); exclude them with an axis filter such as n_modes=1:");
+    if (X.hasNaN()) {
+      // Name the first NaN cell and its cause in the kernel's terms.
+      Eigen::Index r0 = -1, c0 = -1, n_cols = 0;
+      for (Eigen::Index c = 0; c < X.cols(); ++c) {
+        if (!X.col(c).hasNaN()) continue;
+        ++n_cols;
+        if (c0 < 0) {
+          c0 = c;
+          for (r0 = 0; !std::isnan(X(r0, c)); ++r0) {
+          }
+        }
+      }
+      throw InputError("--select '" + sel.text + "': " + std::to_string(n_cols) + " exported coefficients are NaN, first " +
+                       detail::cell_namer(cat, sel, entries)(r0, c0) + ", because it is " +
+                       detail::nan_cause(cat, sel, c0) +
+                       "; exclude such coefficients with an axis filter (e.g. n_modes=1: for power, or another "
+                       "kernel=) or leave out the entries");
+    }
     detail::Transformer tr{o.transform, {}, {}};
     if (o.transform == Transform::standardise) {
       tr.kind = Transform::none;  // standardisation is the per-coefficient normalisation below
     }
-    tr.apply(X, "selection '" + sel.name + "'");
+    tr.apply(X, "selection '" + sel.name + "'", detail::cell_namer(cat, sel, entries));
     // Normalisation from the training split only, so validation and test
     // stay unseen; constant coefficients keep scale 1.
     Eigen::VectorXd mean = Eigen::VectorXd::Zero(X.cols()), sd = Eigen::VectorXd::Ones(X.cols());
@@ -138,7 +155,7 @@ void run_export(const ExportOptions& o) {
       // quasi-maximum-likelihood θ̂ = θ_fid + F⁻¹ t.
       auto m = detail::fisher_model(cat, sel, *st, o.transform == Transform::log ? Transform::log : Transform::none, false);
       Eigen::MatrixXd Xs = cat.load(m.selection, entries);
-      m.transform.apply(Xs, "selection '" + sel.name + "'");
+      m.transform.apply(Xs, "selection '" + sel.name + "'", detail::cell_namer(cat, m.selection, entries));
       const Eigen::MatrixXd t = (Xs.rowwise() - m.mean.transpose()) * m.precision * m.derivatives;
       const Eigen::MatrixXd Finv = spd_inverse(m.fisher, "the Fisher matrix");
       Eigen::VectorXd fid(static_cast<Eigen::Index>(st->params.size()));
@@ -162,6 +179,7 @@ void run_export(const ExportOptions& o) {
     std::printf("%s", selection_record(cat, sel).c_str());
   }
   h5::write_attr(out.get(), "selections", names);
+  h5::save_file(out, target);
   std::printf("exported %zu entries from %zu design points: train %zu, validation %zu, test %zu entries\nwrote %s\n", n,
               points.size(), counts[0], counts[1], counts[2], o.output.c_str());
 }

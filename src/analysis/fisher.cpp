@@ -13,6 +13,7 @@
 #include "analysis/internal.hpp"
 #include "core/errors.hpp"
 #include "core/log.hpp"
+#include "core/output_file.hpp"
 
 namespace spinflip::analysis {
 namespace detail {
@@ -162,10 +163,10 @@ FisherModel fisher_model(const Catalogue& cat, const Selection& sel_in, const St
   m.transform.kind = transform;
   m.transform.fit(m.fiducial);
   const std::string what = "selection '" + m.selection.name + "'";
-  m.transform.apply(m.fiducial, what);
+  m.transform.apply(m.fiducial, what, cell_namer(cat, m.selection, st.fiducial_entries));
   for (std::size_t k = 0; k < st.pairs.size(); ++k) {
-    m.transform.apply(plus[k], what);
-    m.transform.apply(minus[k], what);
+    m.transform.apply(plus[k], what, cell_namer(cat, m.selection, st.pairs[k].plus_entries));
+    m.transform.apply(minus[k], what, cell_namer(cat, m.selection, st.pairs[k].minus_entries));
     m.diff.push_back((plus[k] - minus[k]) / st.pairs[k].delta);
   }
   const std::size_t n = static_cast<std::size_t>(m.fiducial.rows()), d = static_cast<std::size_t>(m.fiducial.cols());
@@ -275,7 +276,8 @@ void run_fisher(const FisherOptions& o) {
   const auto np = st.params.size();
   if (o.tolerance <= 0) throw InputError("--tolerance " + std::to_string(o.tolerance) + " must be > 0");
 
-  h5::Id out = h5::create_file(o.output);
+  core::OutputFile target(o.output);  // written whole or not at all
+  h5::Id out = h5::create_memory_file();
   detail::write_output_header(out.get(), cat, "fisher");
   std::vector<std::string> pnames, punits, plabels;
   std::vector<double> pfid, plog;
@@ -411,7 +413,7 @@ void run_fisher(const FisherOptions& o) {
     rows.push_back(std::move(row));
   }
   h5::write_attr(out.get(), "selections", names);
-  out.reset();
+  h5::save_file(out, target);
 
   // The comparison table: one column per selection, marginalised (conditional) 1σ.
   std::printf("Fisher forecast: fiducial point %lld, %zu realisations, step index %lld\n",

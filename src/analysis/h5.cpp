@@ -85,6 +85,29 @@ Id create_file(const std::string& path) {
   return f;
 }
 
+Id create_memory_file() {
+  quiet_errors();
+  Id fapl(H5Pcreate(H5P_FILE_ACCESS));
+  check(H5Pset_fapl_core(fapl.get(), 1 << 20, false), "in-memory output file");
+  // A unique name: the core driver refuses a second open file of the same name.
+  static int serial = 0;
+  const std::string name = "spinflip-output-" + std::to_string(++serial);
+  Id f(H5Fcreate(name.c_str(), H5F_ACC_TRUNC, H5P_DEFAULT, fapl.get()));
+  if (!f) throw InternalError("cannot create an in-memory HDF5 file (" + last_error() + ")");
+  return f;
+}
+
+void save_file(Id& file, core::OutputFile& target) {
+  check(H5Fflush(file.get(), H5F_SCOPE_GLOBAL), "flushing the in-memory output");
+  const ssize_t n = H5Fget_file_image(file.get(), nullptr, 0);
+  if (n < 0) throw InternalError("cannot size the in-memory HDF5 file (" + last_error() + ")");
+  std::string bytes(static_cast<std::size_t>(n), '\0');
+  if (H5Fget_file_image(file.get(), bytes.data(), bytes.size()) != n)
+    throw InternalError("cannot copy the in-memory HDF5 file (" + last_error() + ")");
+  file.reset();
+  target.write_and_commit(bytes);
+}
+
 bool exists(hid_t loc, const std::string& path) {
   // Walk the path one link at a time: H5Lexists fails on a missing parent.
   std::string prefix;

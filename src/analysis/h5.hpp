@@ -8,6 +8,8 @@
 #include <string>
 #include <vector>
 
+#include "core/output_file.hpp"
+
 namespace spinflip::analysis::h5 {
 
 /// Owns one HDF5 id; closes it with the matching H5?close.
@@ -44,6 +46,12 @@ std::string last_error();
 Id open_read(const std::string& path);
 /// Create/truncate for writing; refuses unwritable paths with IoError.
 Id create_file(const std::string& path);
+/// An HDF5 file held in memory (the core driver, no backing store): nothing
+/// reaches the disk until save_file, so a failure half way writes nothing.
+Id create_memory_file();
+/// Close a file from create_memory_file and write its bytes through `target`
+/// (checked, then renamed over the target).
+void save_file(Id& file, core::OutputFile& target);
 
 bool exists(hid_t loc, const std::string& path);
 bool attr_exists(hid_t loc, const std::string& name);

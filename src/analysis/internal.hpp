@@ -1,6 +1,7 @@
 // Internal helpers shared by the three verbs.
 #pragma once
 #include <cstdint>
+#include <functional>
 #include <memory>
 #include <optional>
 #include <string>
@@ -47,12 +48,22 @@ std::vector<Selection> selections(const Catalogue& cat, const std::vector<std::s
 void drop_degenerate(const Catalogue& cat, Selection& sel, Eigen::MatrixXd& reference,
                      std::vector<Eigen::MatrixXd*> others);
 
+/// Names cell (row, column) of a loaded data matrix for messages: the entry
+/// (point, realisation) and the coefficient (scenario/kernel, unit, axes).
+using CellNamer = std::function<std::string(Eigen::Index row, Eigen::Index col)>;
+/// The namer for X = cat.load(sel, entries).
+CellNamer cell_namer(const Catalogue& cat, const Selection& sel, const std::vector<std::size_t>& entries);
+/// Why a coefficient can be NaN, in the kernel's terms (an empty Fourier bin,
+/// a moment of a constant slice, ...), for column `col` of `sel`.
+std::string nan_cause(const Catalogue& cat, const Selection& sel, Eigen::Index col);
+
 /// A transform fitted on the fiducial rows and applied to any rows.
 struct Transformer {
   Transform kind = Transform::none;
   Eigen::VectorXd mean, sd;
   void fit(const Eigen::MatrixXd& fiducial);
-  void apply(Eigen::MatrixXd& X, const std::string& what) const;
+  /// `where`, if given, names the first offending cell in an error.
+  void apply(Eigen::MatrixXd& X, const std::string& what, const CellNamer& where = {}) const;
   std::string describe() const;
 };
 

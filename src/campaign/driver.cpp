@@ -39,8 +39,15 @@ namespace {
 volatile std::sig_atomic_t g_stop_signal = 0;
 
 extern "C" void on_stop_signal(int sig) {
-  // SIGTERM outranks SIGUSR1: the scheduler is about to kill us, abandon at once.
-  if (g_stop_signal == 0 || sig == SIGTERM) g_stop_signal = sig;
+  // A second Ctrl-C means "now": the default action ends the process (the
+  // catalogue survives that as it survives kill -9).
+  if (sig == SIGINT && g_stop_signal == SIGINT) {
+    std::signal(SIGINT, SIG_DFL);
+    std::raise(SIGINT);
+    return;
+  }
+  // SIGTERM and SIGINT outrank SIGUSR1: abandon the entry in progress at once.
+  if (g_stop_signal == 0 || abandons_entry(sig)) g_stop_signal = sig;
 }
 }  // namespace
 
@@ -51,6 +58,16 @@ void install_stop_handlers() {
   sa.sa_flags = SA_RESTART;
   sigaction(SIGTERM, &sa, nullptr);
   sigaction(SIGUSR1, &sa, nullptr);
+  sigaction(SIGINT, &sa, nullptr);
+}
+bool abandons_entry(int sig) { return sig == SIGTERM || sig == SIGINT; }
+std::string signal_name(int sig) {
+  switch (sig) {
+    case SIGTERM: return "SIGTERM";
+    case SIGUSR1: return "SIGUSR1";
+    case SIGINT: return "SIGINT";
+    default: return "signal " + std::to_string(sig);
+  }
 }
 int stop_signal() { return g_stop_signal; }
 void reset_stop_signal() { g_stop_signal = 0; }
@@ -319,7 +336,7 @@ struct Comm {
   }
 };
 
-/// Thrown inside an entry when the group agrees to abandon it (SIGTERM).
+/// Thrown inside an entry when the group agrees to abandon it (SIGTERM, SIGINT).
 struct Abandon {};
 /// An entry-level failure every rank of the group agrees on.
 struct EntryFailed {
@@ -420,6 +437,35 @@ class Progress {
   double interval_, start_, last_;
 };
 
+/// The lowest rank's non-empty `text`, on every rank ("" if all are empty).
+std::string agreed_text(const std::string& text, MPI_Comm comm) {
+  const int size = size_of(comm);
+  int mine = text.empty() ? size : rank_of(comm), first = size;
+  SPINFLIP_CHECK_MPI(MPI_Allreduce(&mine, &first, 1, MPI_INT, MPI_MIN, comm));
+  if (first == size) return {};
+  std::string out = text;
+  long long n = static_cast<long long>(out.size());
+  SPINFLIP_CHECK_MPI(MPI_Bcast(&n, 1, MPI_LONG_LONG, first, comm));
+  out.resize(static_cast<std::size_t>(n));
+  SPINFLIP_CHECK_MPI(MPI_Bcast(out.data(), static_cast<int>(n), MPI_CHAR, first, comm));
+  return out;
+}
+
+/// An exception leaving the farm (an HDF5 or MPI failure) still leaves the
+/// progress file saying how the run ended, not "running".
+struct ProgressOnError {
+  Progress* progress;
+  Counter& counter;
+  int unwinding_at_start = std::uncaught_exceptions();
+  ~ProgressOnError() {
+    if (!progress || std::uncaught_exceptions() <= unwinding_at_start) return;
+    try {
+      progress->tick(counter, true, "error");
+    } catch (...) {  // the error already on its way to main() is the one to report
+    }
+  }
+};
+
 /// One group's state while it runs entries.
 class Worker {
  public:
@@ -430,6 +476,7 @@ class Worker {
 
   /// Run one entry; true if it finished (done or failed), false if abandoned.
   RunResult::Seconds times;  // this rank's time by phase
+  std::string write_error;   // the first catalogue write the file system refused
 
   bool run_entry(std::size_t index) {
     const double t0 = MPI_Wtime();
@@ -445,7 +492,7 @@ class Worker {
     }
     const double seconds = MPI_Wtime() - t0;
     const double w0 = MPI_Wtime();
-    if (grank_ == 0) {
+    if (grank_ == 0) try {
       if (failure.empty()) {
         result.wall_time_s = seconds;
         result.rank = world_rank_;
@@ -458,6 +505,14 @@ class Worker {
         counter_.add(Counter::failed, 1);
         log::warn("entry {} (point {}, realisation {}) failed: {}", index, entry.point, entry.realisation, failure);
       }
+    } catch (const IoError& e) {
+      // The file system refused the rows (a full disk): the entry stays
+      // pending, every group stops at its next entry, and run() reports this
+      // once all ranks have left the farm and closed the file.
+      if (write_error.empty())
+        write_error = std::string(e.what()) + " (entry " + std::to_string(index) + ", point " +
+                      std::to_string(entry.point) + ", realisation " + std::to_string(entry.realisation) + ")";
+      counter_.add(Counter::stop, 1);
     }
     times.catalogue += MPI_Wtime() - w0;
     tick();
@@ -472,7 +527,7 @@ class Worker {
   /// Between stages: abandon the entry if any rank of the group got SIGTERM.
   void checkpoint() {
     tick();
-    int mine = stop_signal() == SIGTERM ? 1 : 0, any = 0;
+    int mine = abandons_entry(stop_signal()) ? 1 : 0, any = 0;
     SPINFLIP_CHECK_MPI(MPI_Allreduce(&mine, &any, 1, MPI_INT, MPI_MAX, group_));
     if (any) throw Abandon{};
   }
@@ -681,6 +736,9 @@ RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
               cfg.string("campaign.name"), statuses.size(), done0, statuses.size() - done0 - todo.size(),
               todo.size(), output.string(), exists ? "resumed" : "created", wsize, n_groups, g);
 
+  // From here a signal is a clean, resumable stop. Before, nothing this run
+  // made needs one: the default action ends the process at once (a catalogue
+  // being created is still <catalogue>.partial).
   install_stop_handlers();
   Counter counter(world);
   std::unique_ptr<Progress> progress;
@@ -688,6 +746,7 @@ RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
     progress = std::make_unique<Progress>(output, cfg.string("campaign.name"), statuses.size(), done0, failed0,
                                           limit, wsize, n_groups, cfg.real("campaign.progress_interval_s"));
   if (progress) progress->tick(counter, true);
+  ProgressOnError progress_on_error{progress.get(), counter};
   Worker worker(c, setup, cat, group.comm, wrank, progress.get(), counter);
 
   bool abandoned = false;
@@ -726,6 +785,9 @@ RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
   if (wrank == 0) counts[0] = counter.read(Counter::done), counts[1] = counter.read(Counter::failed);
   SPINFLIP_CHECK_MPI(MPI_Bcast(counts, 2, MPI_LONG_LONG, 0, world));
   cat.close();
+  if (std::string write_error = agreed_text(worker.write_error, world); !write_error.empty()) {
+    throw IoError(write_error + "; the catalogue is whole and resumable: free space, then run the same command again");
+  }
 
   RunResult r;
   {
@@ -752,7 +814,10 @@ RunResult run(const Campaign& c, const RunOptions& options, MPI_Comm world) {
     if (r.stopped_early)
       log::info("stopped early{}{}: {} entries run, {} done, {} failed, {} pending; the catalogue is resumable: run "
                 "the same command again to continue",
-                any_sig ? " on " : " after --max-entries", any_sig == SIGTERM ? "SIGTERM" : any_sig ? "SIGUSR1" : "",
+                any_sig ? " on " : " after --max-entries",
+                any_sig == SIGTERM ? "SIGTERM (from the scheduler, or from mpiexec on Ctrl-C)"
+                : any_sig          ? signal_name(any_sig)
+                                   : std::string(),
                 r.ran, r.done, r.failed, r.pending);
     if (r.stopped_early && any_abandoned)
       log::info("entries in progress at the signal were abandoned and stay pending");

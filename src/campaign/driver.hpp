@@ -72,8 +72,17 @@ void check_group_size(int group_size, int world_size, const std::string& origin)
 /// The contiguous block [begin, end) of n units that rank r of a group of g measures.
 std::pair<std::size_t, std::size_t> unit_block(std::size_t n, int r, int g);
 
-/// Install SIGTERM/SIGUSR1 handlers that only set a flag (idempotent).
+/// Exit status of `spinflip run` stopped by a signal: the catalogue is whole and
+/// resumable with entries pending (the same 3 as `status --require-complete`).
+inline constexpr int exit_stopped = 3;
+
+/// Install SIGTERM/SIGUSR1/SIGINT handlers that only set a flag (idempotent);
+/// a second SIGINT ends the process at once.
 void install_stop_handlers();
+/// SIGTERM and SIGINT abandon the entry in progress; SIGUSR1 lets it finish.
+bool abandons_entry(int sig);
+/// "SIGTERM", "SIGUSR1", "SIGINT", else "signal N".
+std::string signal_name(int sig);
 /// The signal that asked this process to stop (0: none).
 int stop_signal();
 /// For tests: forget a received signal.

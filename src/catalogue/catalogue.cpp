@@ -9,6 +9,7 @@
 
 #include <fcntl.h>
 #include <sys/file.h>
+#include <sys/resource.h>
 #include <unistd.h>
 
 #include <algorithm>
@@ -185,14 +186,47 @@ void check_layout(const Layout& L) {
     }
 }
 
-/// An exclusive advisory lock on `<catalogue>.lock`, held while a run has the
-/// file open for writing. The kernel drops it when the process dies, kill -9
-/// included, so a crashed run never leaves a stale lock.
+/// The bytes of the datasets that grow with the entries (a lower bound of the
+/// file's size: metadata and the design come on top).
+std::uintmax_t raw_bytes(const Layout& L) {
+  std::uintmax_t per_entry = 2 * 8 * L.history_z.size() + error_text_bytes + sha256_text_bytes + 8 + 4 + 1 +
+                             8 * L.parameters.size() + 3 * 8 + 2 * 8;
+  for (const auto& s : L.scenarios)
+    for (const auto& k : s.kernels) per_entry += 8 * k.unit_z.size() * k.n_coeff;
+  return per_entry * L.entries.size();
+}
+
+/// Refuse, before a byte is written, a catalogue that cannot fit: the file is
+/// pre-allocated whole, so a full disk or a file size limit (ulimit -f) would
+/// otherwise stop its creation half way.
+void check_room(const fs::path& path, const fs::path& dir, std::uintmax_t need) {
+  auto mb = [](std::uintmax_t b) { return std::to_string((b + 999999) / 1000000) + " MB"; };
+  std::error_code ec;
+  const fs::space_info space = fs::space(dir, ec);
+  if (!ec && space.available < need)
+    throw IoError("cannot create catalogue " + path.string() + ": it needs at least " + mb(need) + " and " +
+                  dir.string() + " has " + mb(space.available) + " free");
+  rlimit lim{};
+  if (::getrlimit(RLIMIT_FSIZE, &lim) == 0 && lim.rlim_cur != RLIM_INFINITY && lim.rlim_cur < need)
+    throw IoError("cannot create catalogue " + path.string() + ": it needs at least " + mb(need) +
+                  " and this process may write files of " + mb(lim.rlim_cur) + " at most (ulimit -f)");
+}
+
+/// An exclusive advisory lock on `<real catalogue path>.lock`, held while a run
+/// has the file open for writing. The path is resolved first (symlinks to the
+/// file or to any folder above it, `..`, relative paths), so every name of one
+/// file finds one lock. The lock is a file of its own rather than a lock on the
+/// catalogue because MPI-IO takes byte-range locks on the catalogue itself
+/// (ROMIO on NFS), which a whole-file lock held by rank 0 would block. The
+/// kernel drops it when the process dies, kill -9 included, so a crashed run
+/// never leaves a stale lock.
 class LockFile {
  public:
   LockFile() = default;
   explicit LockFile(const fs::path& catalogue) {
-    fs::path p = catalogue;
+    std::error_code ec;
+    fs::path p = fs::weakly_canonical(fs::absolute(catalogue, ec), ec);
+    if (ec || p.empty()) p = catalogue;
     p += ".lock";
     fd_ = ::open(p.c_str(), O_RDWR | O_CREAT | O_CLOEXEC, 0644);
     if (fd_ < 0)
@@ -202,7 +236,8 @@ class LockFile {
       ::close(fd_);
       fd_ = -1;
       throw IoError("catalogue " + catalogue.string() + " is in use by another spinflip run (" + p.string() +
-                    " is locked): wait for it to finish or use another -o path");
+                    " is locked, maybe through another path to the same file): wait for it to finish or use "
+                    "another -o path");
     }
   }
   LockFile(LockFile&& o) noexcept : fd_(std::exchange(o.fd_, -1)) {}
@@ -264,8 +299,18 @@ struct Catalogue::Impl {
     closed = true;
   }
 
-  /// Write `data` (one row of `ds`: everything after axis 0) at row `entry`.
+  /// Write `data` (one row of `ds`: everything after axis 0) at row `entry`;
+  /// a write the file system refuses (a full disk, a file size limit) is an
+  /// IoError naming the catalogue, so the run can stop cleanly and resumably.
   void write_row(hid_t ds, hid_t memtype, std::size_t entry, const void* data) {
+    try {
+      write_row_unchecked(ds, memtype, entry, data);
+    } catch (const InternalError& e) {
+      throw IoError("catalogue " + path.string() + ": the file system refused a write (a full disk or a file size "
+                    "limit?): " + e.what());
+    }
+  }
+  void write_row_unchecked(hid_t ds, hid_t memtype, std::size_t entry, const void* data) {
     Handle space = h5::dataspace(SPINFLIP_H5_ID(H5Dget_space(ds)));
     std::vector<hsize_t> d = h5::dims(ds);
     std::vector<hsize_t> start(d.size(), 0), count = d;
@@ -307,6 +352,7 @@ Catalogue Catalogue::create(const fs::path& path, const Layout& L, MPI_Comm comm
       throw IoError("cannot write catalogue " + path.string() + ": folder " + dir.string() + " does not exist");
     if (::access(dir.c_str(), W_OK) != 0)
       throw IoError("cannot write catalogue " + path.string() + ": folder " + dir.string() + " is not writable");
+    check_room(path, dir, raw_bytes(L));
     fs::remove(partial, ec);  // a creation that was interrupted before
   });
   {

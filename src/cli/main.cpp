@@ -7,6 +7,7 @@
 #include <iostream>
 
 #include "cli/verbs.hpp"
+#include "core/config.hpp"
 #include "core/errors.hpp"
 #include "core/log.hpp"
 #include "core/version.hpp"
@@ -30,14 +31,34 @@ int world_size() {
 
 namespace {
 
+/// The verb a mistyped first word was probably meant to be ("" if none is close).
+std::string closest_verb(const std::string& word) {
+  std::string best;
+  std::size_t best_d = 3;  // at most two edits away, else no suggestion
+  for (const auto& v : spinflip::cli::verb_registry()) {
+    const std::size_t d = spinflip::core::edit_distance(word, v.name);
+    if (d < best_d) best_d = d, best = v.name;
+  }
+  return best;
+}
+
+/// The first argument that is not an option (the verb, if any).
+const char* first_word(int argc, char** argv) {
+  for (int i = 1; i < argc; ++i)
+    if (argv[i][0] != '-') return argv[i];
+  return nullptr;
+}
+
 int run_cli(int argc, char** argv) {
   using namespace spinflip;
   CLI::App app{"spinflip: summary-statistic campaigns on 21-cm light cones"};
   app.require_subcommand(0, 1);
   bool show_version = false, verbose = false, quiet = false;
   app.add_flag("--version", show_version, "print the version and exit");
-  app.add_flag("-v,--verbose", verbose, "debug logging, on every rank");
-  app.add_flag("-q,--quiet", quiet, "warnings and errors only");
+  app.add_flag("-v,--verbose", verbose, "debug logging, on every rank (accepted before or after the verb)");
+  app.add_flag("-q,--quiet", quiet, "warnings and errors only (accepted before or after the verb)");
+  // Subcommands made from here on hand options they do not know (-q, -v) to the app.
+  app.fallthrough();
 
   auto& verbs = cli::verb_registry();
   std::sort(verbs.begin(), verbs.end(), [](auto& a, auto& b) { return a.order < b.order; });
@@ -55,7 +76,19 @@ int run_cli(int argc, char** argv) {
     if (cli::world_rank() == 0) app.exit(e);
     return 0;
   } catch (const CLI::ParseError& e) {
-    if (cli::world_rank() == 0) std::cerr << "spinflip: error: " << e.what() << " (see spinflip --help)\n";
+    if (cli::world_rank() == 0) {
+      const char* word = first_word(argc, argv);
+      const bool verb_known = word && std::any_of(verbs.begin(), verbs.end(), [&](auto& v) { return v.name == word; });
+      if (word && !verb_known) {
+        const std::string near = closest_verb(word);
+        std::cerr << "spinflip: error: unknown verb '" << word << "'"
+                  << (near.empty() ? std::string() : " (did you mean '" + near + "'?)")
+                  << "; spinflip --help lists the verbs\n";
+      } else {
+        std::cerr << "spinflip: error: " << e.what() << " (see spinflip " << (word ? std::string(word) + " " : "")
+                  << "--help)\n";
+      }
+    }
     return 2;
   }
   log::init(cli::world_rank(), cli::world_size(),
@@ -67,8 +100,9 @@ int run_cli(int argc, char** argv) {
   }
   for (auto& [sub, run] : actions)
     if (sub->parsed()) return run();
-  if (cli::world_rank() == 0) std::cout << app.help();
-  return 0;
+  // No verb: the usage goes to stderr and the status says nothing was done.
+  if (cli::world_rank() == 0) std::cerr << app.help() << "spinflip: error: no verb given\n";
+  return 2;
 }
 
 }  // namespace
@@ -84,7 +118,9 @@ int main(int argc, char** argv) {
     status = e.exit_status();
     // User errors are raised identically on every rank (validation is
     // collective), so rank 0 speaks for all; internal errors may be local.
-    if (spinflip::cli::world_rank() == 0 || status != 2) std::cerr << "spinflip: error: " << e.what() << "\n";
+    std::string message = e.what();  // one line, whatever a message quotes
+    std::replace(message.begin(), message.end(), '\n', ' ');
+    if (spinflip::cli::world_rank() == 0 || status != 2) std::cerr << "spinflip: error: " << message << "\n";
     abort_all = status != 2 && spinflip::cli::world_size() > 1;
   } catch (const std::exception& e) {
     std::cerr << "spinflip: internal error: " << e.what() << "\n";

@@ -17,6 +17,7 @@
 #include "fft/planning.hpp"
 #include "core/errors.hpp"
 #include "core/log.hpp"
+#include "core/output_file.hpp"
 #include "cosmo/cosmology.hpp"
 #include "instrument/instrument.hpp"
 #include "sim/lightcone.hpp"
@@ -64,10 +65,9 @@ int run_cone(const ConeArgs& a) {
     if (std::find(names.begin(), names.end(), s) == names.end())
       throw InputError("--scenario " + s + ": the campaign has no [scenarios." + s + "] table");
   }
-  const std::filesystem::path out(a.output);
-  const auto dir = out.parent_path().empty() ? std::filesystem::path(".") : out.parent_path();
-  if (!std::filesystem::is_directory(dir))
-    throw IoError("-o " + a.output + ": folder " + dir.string() + " does not exist");
+  // Refuse unwritable destinations before the cone is generated (every rank checks alike).
+  core::check_output_folder(a.output, "-o");
+  if (!a.preview.empty()) core::check_output_folder(a.preview, "--preview");
 
   campaign::Entry entry{static_cast<std::size_t>(a.point), static_cast<std::size_t>(a.realisation)};
   const rng::EntryKey key = c.entry_key(entry);
@@ -103,8 +103,11 @@ int run_cone(const ConeArgs& a) {
   geo.z = cone.z, geo.freq_MHz = cone.freq_MHz, geo.distance_mpc = cone.distance_mpc;
 
   h5::Handle fapl = h5::plist(SPINFLIP_H5_ID(H5Pcreate(H5P_FILE_ACCESS)));
-  SPINFLIP_H5(H5Pset_fapl_sec2(fapl));
-  hid_t fid = H5Fcreate(a.output.c_str(), H5F_ACC_TRUNC, H5P_DEFAULT, fapl);
+  // Written whole or not at all: built in memory (HDF5's core driver) and
+  // written out at the end, so a failure or a full disk leaves no partial file.
+  SPINFLIP_H5(H5Pset_fapl_core(fapl, 1 << 24, false));
+  core::OutputFile target(a.output);
+  hid_t fid = H5Fcreate("spinflip-cone-output", H5F_ACC_TRUNC, H5P_DEFAULT, fapl);
   if (fid < 0) throw IoError("-o " + a.output + ": cannot create the file (" + h5::error_stack_text() + ")");
   h5::Handle file = h5::file(fid);
   write_cube(file, "delta_tb_mK", tb);
@@ -163,7 +166,13 @@ int run_cone(const ConeArgs& a) {
   h5::write_attribute(file, "role", campaign::role_name(c.points()[static_cast<std::size_t>(a.point)].role));
   h5::write_attribute(file, "params", c.points()[static_cast<std::size_t>(a.point)].values);
   h5::write_attribute(file, "cell_mpc", cone.cell_mpc);
+  SPINFLIP_H5(H5Fflush(file, H5F_SCOPE_GLOBAL));
+  const ssize_t n_bytes = H5Fget_file_image(file, nullptr, 0);
+  std::string bytes(static_cast<std::size_t>(std::max<ssize_t>(n_bytes, 0)), '\0');
+  if (n_bytes <= 0 || H5Fget_file_image(file, bytes.data(), bytes.size()) != n_bytes)
+    throw InternalError("-o " + a.output + ": cannot copy the in-memory HDF5 file");
   file.close();
+  target.write_and_commit(bytes);
   log::info("cone: point {} realisation {} ({}×{}×{} cells, z {:.3f}–{:.3f}) written to {}", a.point, a.realisation,
             tb.shape[0], tb.shape[1], tb.shape[2], cone.z.front(), cone.z.back(), a.output);
   if (!a.preview.empty() && analysis::detail::run_plot("plot_cone.py", {a.output, a.preview}))
@@ -178,12 +187,13 @@ RegisterVerb cone_verb("cone", "one light cone of a campaign (point, realisation
                          sub.add_option("--point", a->point, "design point index")->required();
                          sub.add_option("--realisation", a->realisation, "realisation index (seed)")
                              ->capture_default_str();
-                         sub.add_option("-o,--output", a->output, "output HDF5 file")->required();
+                         sub.add_option("-o,--output", a->output, "the HDF5 file written (required)")->required();
                          sub.add_option("--fields", a->fields, "also write: density, x_hi, z_ion, spin (T_S and T_K)")->delimiter(',');
                          sub.add_option("--scenario", a->scenarios,
                                         "also write the cone as this scenario observes it (repeatable)");
                          sub.add_option("--preview", a->preview,
-                                        "PNG picture: transverse slice, line-of-sight cut, histories, uv coverage");
+                                        "also write this PNG picture: transverse slice, line-of-sight cut, histories, uv coverage "
+                                        "(default: none)");
                          return [a]() { return run_cone(*a); };
                        });
 

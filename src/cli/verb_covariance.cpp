@@ -11,7 +11,8 @@ RegisterVerb covariance_verb(
       auto c = std::make_shared<analysis::CliCommon>();
       o->output = "covariance.h5";
       analysis::add_common_options(sub, *o, *c);
-      sub.add_option("-o,--output", o->output, "output HDF5 file");
+      sub.add_option("-o,--output", o->output, "the HDF5 file written (default: covariance.h5; a picture "
+                     "<output>_corr.png beside it unless --no-plot)");
       sub.add_flag("--shrink", o->shrink, "Ledoit-Wolf (2004) shrinkage towards a scaled identity");
       return [=]() {
         if (world_rank() != 0) return 0;  // serial analysis: rank 0 does it

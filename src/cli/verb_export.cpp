@@ -12,7 +12,7 @@ RegisterVerb export_verb(
       auto step = std::make_shared<std::int64_t>(-1);
       o->output = "train.h5";
       analysis::add_common_options(sub, *o, *c, false);
-      sub.add_option("-o,--output", o->output, "output HDF5 file");
+      sub.add_option("-o,--output", o->output, "the HDF5 training set written (default: train.h5)");
       sub.add_option("--roles", o->roles, "design roles to export (training, list, fiducial, stencil+, stencil-, all)")
           ->delimiter(',')
           ->capture_default_str();

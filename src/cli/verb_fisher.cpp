@@ -12,7 +12,8 @@ RegisterVerb fisher_verb(
       auto step = std::make_shared<std::int64_t>(-1);
       o->output = "fisher.h5";
       analysis::add_common_options(sub, *o, *c);
-      sub.add_option("-o,--output", o->output, "output HDF5 file");
+      sub.add_option("-o,--output", o->output, "the HDF5 file written (default: fisher.h5; a picture "
+                     "<output>_corner.png beside it unless --no-plot)");
       sub.add_option("--step-index", *step, "which stencil step size to use (default: the first)");
       sub.add_option("--tolerance", o->tolerance, "flag a convergence check that moves a 1-sigma error by more than this fraction")
           ->capture_default_str();

@@ -11,6 +11,7 @@
 #include "campaign/schema.hpp"
 #include "cli/verbs.hpp"
 #include "core/errors.hpp"
+#include "core/output_file.hpp"
 #include "cosmo/cosmology.hpp"
 #include "ingest/ingest.hpp"
 #include "sim/lightcone.hpp"
@@ -30,7 +31,8 @@ void write_npy(const std::string& path, const core::Array3<float>& a) {
                        std::to_string(a.shape[1]) + ", " + std::to_string(a.shape[2]) + "), }";
   while ((10 + header.size() + 1) % 64 != 0) header += ' ';
   header += '\n';
-  std::ofstream out(path, std::ios::binary);
+  core::OutputFile target(path);  // written whole or not at all
+  std::ofstream out(target.path(), std::ios::binary);
   if (!out) throw IoError("-o " + path + ": cannot be written");
   out.write("\x93NUMPY\x01\x00", 8);
   const auto n = static_cast<std::uint16_t>(header.size());
@@ -39,7 +41,9 @@ void write_npy(const std::string& path, const core::Array3<float>& a) {
   out.write(header.data(), static_cast<std::streamsize>(header.size()));
   static_assert(std::endian::native == std::endian::little, "writer assumes a little-endian machine");
   out.write(reinterpret_cast<const char*>(a.data.data()), static_cast<std::streamsize>(a.data.size() * 4));
-  if (!out.flush()) throw IoError("-o " + path + ": write failed");
+  if (!out.flush()) throw IoError("-o " + path + ": write failed (a full disk?); the previous file, if any, is kept");
+  out.close();
+  target.commit();
 }
 
 RegisterVerb ingest_verb(

@@ -5,10 +5,12 @@
 #include <filesystem>
 #include <fstream>
 #include <iostream>
+#include <optional>
 #include <sstream>
 
 #include "cli/verbs.hpp"
 #include "core/errors.hpp"
+#include "core/output_file.hpp"
 #include "jobscript/jobscript.hpp"
 
 namespace spinflip::cli {
@@ -17,10 +19,11 @@ namespace {
 namespace fs = std::filesystem;
 
 struct Options {
-  std::string campaign, scheduler = "slurm", walltime = "01:00:00", output = ".", catalogue;
+  std::string campaign, scheduler = "slurm", walltime = "01:00:00", output, catalogue;
   std::string account, partition, env_setup, spack_env, launcher, after, name, spinflip, template_file;
   std::string srun_mpi = "pmix";
-  int nodes = 1, ranks_per_node = 1, group_size = 0, chain = 10, signal_lead = 120;
+  int nodes = 1, ranks_per_node = 1, group_size = 0, chain = 10;
+  std::optional<int> signal_lead;
 };
 
 std::string read_text(const fs::path& path, const std::string& what) {
@@ -52,10 +55,14 @@ int run_jobscript(const Options& o) {
     throw ConfigError("--env-setup and --spack-env are alternatives: give one of them");
   r.campaign = campaign.string();
   r.work_dir = fs::current_path().string();
-  const fs::path out_dir = fs::absolute(o.output).lexically_normal();
+  // -o is the file written, as in every verb; an existing folder, or a path
+  // ending in / (created), takes the script under its default name.
   r.job_name = o.name.empty() ? campaign.stem().string() : o.name;
   const std::string ext = r.scheduler == jobscript::Scheduler::slurm ? ".slurm" : ".pbs";
-  r.script_path = (out_dir / (r.job_name + ext)).string();
+  fs::path script = fs::absolute(o.output.empty() ? fs::path(".") : fs::path(o.output)).lexically_normal();
+  if (o.output.empty() || o.output.back() == '/' || fs::is_directory(script)) script /= r.job_name + ext;
+  const fs::path out_dir = script.parent_path();
+  r.script_path = script.string();
   r.log_dir = (out_dir / "logs").string();
   r.catalogue = o.catalogue.empty() ? (fs::path(r.work_dir) / (campaign.stem().string() + ".h5")).string()
                                     : fs::absolute(o.catalogue).lexically_normal().string();
@@ -82,13 +89,18 @@ int run_jobscript(const Options& o) {
 
   if (world_rank() != 0) return 0;
   std::error_code ec;
+  if (!o.output.empty() && o.output.back() == '/') fs::create_directories(out_dir, ec);
+  core::check_output_folder(r.script_path, "-o");
   fs::create_directories(r.log_dir, ec);
-  if (ec) throw IoError("--output '" + out_dir.string() + "': cannot create " + r.log_dir + ": " + ec.message());
+  if (ec) throw IoError("-o '" + r.script_path + "': cannot create the log folder " + r.log_dir + ": " + ec.message());
   {
-    std::ofstream f(r.script_path, std::ios::binary | std::ios::trunc);
-    if (!(f << text) || !f.flush()) throw IoError("cannot write the job script '" + r.script_path + "'");
+    core::OutputFile target(r.script_path);  // a previous script stays whole until this one is
+    std::ofstream f(target.path(), std::ios::binary | std::ios::trunc);
+    if (!(f << text) || !f.flush()) throw IoError("-o: cannot write the job script '" + r.script_path + "'");
+    f.close();
+    fs::permissions(target.path(), fs::perms::owner_exec | fs::perms::group_exec, fs::perm_options::add, ec);
+    target.commit();
   }
-  fs::permissions(r.script_path, fs::perms::owner_exec | fs::perms::group_exec, fs::perm_options::add, ec);
   const auto q = [](const std::string& s) { return jobscript::shell_quote(s); };
   std::cout << "wrote " << r.script_path << "\n";
   if (r.scheduler == jobscript::Scheduler::slurm)
@@ -112,14 +124,16 @@ RegisterVerb jobscript_verb(
       sub.add_option("--account", o->account, "account to charge");
       sub.add_option("--partition", o->partition, "partition (Slurm) or queue (PBS)");
       sub.add_option("--chain", o->chain, "at most this many jobs in the chain")->capture_default_str();
-      sub.add_option("--output", o->output, "folder for the script and its logs/")->capture_default_str();
-      sub.add_option("-o,--catalogue", o->catalogue, "catalogue path (default: ./<campaign>.h5)");
+      sub.add_option("-o,--output", o->output,
+                     "the script file written (default: ./<name>.slurm or .pbs; a folder takes that name); "
+                     "the scheduler's logs go to logs/ beside it");
+      sub.add_option("--catalogue", o->catalogue, "catalogue path (default: ./<campaign>.h5)");
       sub.add_option("--env-setup", o->env_setup, "shell code run first, e.g. 'module load openmpi hdf5'");
       sub.add_option("--spack-env", o->spack_env, "Spack environment folder to activate");
       sub.add_option("--launcher", o->launcher, "srun or mpirun (default: srun on Slurm, mpirun on PBS)");
       sub.add_option("--srun-mpi", o->srun_mpi, "srun --mpi plugin")->capture_default_str();
-      sub.add_option("--signal-lead-seconds", o->signal_lead, "warn the run this long before the wall time")
-          ->capture_default_str();
+      sub.add_option("--signal-lead-seconds", o->signal_lead,
+                     "warn the run this long before the wall time (default: a quarter of --walltime, at most 120)");
       sub.add_option("--after", o->after, "shell code run once the catalogue is complete (analysis verbs)");
       sub.add_option("--name", o->name, "job name (default: the campaign file's stem)");
       sub.add_option("--spinflip", o->spinflip, "spinflip executable the job runs (default: this one)");

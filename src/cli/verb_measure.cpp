@@ -15,6 +15,7 @@
 #include "cli/verbs.hpp"
 #include "core/errors.hpp"
 #include "core/log.hpp"
+#include "core/output_file.hpp"
 #include "core/version.hpp"
 #include "stats/npy.hpp"
 #include "stats/stats.hpp"
@@ -175,8 +176,15 @@ int run_measure(const std::string& input, const std::string& stats_file, const s
     for (const auto& k : kernels) (void)unit_values(*k, 0);
   });
 
-  H5Id file(H5Fcreate(output.c_str(), H5F_ACC_TRUNC, H5P_DEFAULT, H5P_DEFAULT), H5Fclose,
-            output + ": cannot create the output file (check the directory exists and is writable)");
+
+  // Written whole or not at all: the file is built in memory (HDF5's core
+  // driver) and written out at the end, so a failing kernel or a full disk
+  // leaves no partial file and a previous output as it was.
+  core::OutputFile target(output);
+  H5Id fapl(H5Pcreate(H5P_FILE_ACCESS), H5Pclose, "file access list");
+  h5_check(H5Pset_fapl_core(fapl, 1 << 20, false), "in-memory output file");
+  H5Id file(H5Fcreate("spinflip-measure-output", H5F_ACC_TRUNC, H5P_DEFAULT, fapl), H5Fclose,
+            output + ": cannot create the output file in memory");
   write_attribute(file, "tool_version", std::string(tool_version));
   write_attribute(file, "git_revision", std::string(git_revision));
   write_attribute(file, "input", input);
@@ -250,6 +258,11 @@ int run_measure(const std::string& input, const std::string& stats_file, const s
     write_attribute(group, "unit", std::string(per_slice ? "slice along axis 2" : cube ? "whole cube" : "whole slice"));
     log::info("measure: {} on {} unit(s), {} coefficients each", k->name(), n_units, n_coeff);
   }
+  h5_check(H5Fflush(file, H5F_SCOPE_GLOBAL), output + ": flushing the in-memory file");
+  std::string bytes(static_cast<std::size_t>(std::max<ssize_t>(0, H5Fget_file_image(file, nullptr, 0))), '\0');
+  if (bytes.empty() || H5Fget_file_image(file, bytes.data(), bytes.size()) != static_cast<ssize_t>(bytes.size()))
+    throw InternalError(output + ": cannot copy the in-memory HDF5 file");
+  target.write_and_commit(bytes);
   return 0;
 }
 
@@ -262,7 +275,7 @@ RegisterVerb measure_verb(
       auto threads = std::make_shared<int>(1);
       sub.add_option("input", *input, "2D or 3D array: file.npy (float32/float64) or file.h5:/dataset")->required();
       sub.add_option("--stats", *stats_file, "TOML file with [stats.*] tables")->required();
-      sub.add_option("-o,--output", *output, "output HDF5 file")->required();
+      sub.add_option("-o,--output", *output, "the HDF5 file written (required)")->required();
       sub.add_option("--cell-mpc", *cell, "cell size in comoving Mpc (default: none, k in radians per cell)")
           ->check(CLI::PositiveNumber);
       sub.add_option("--threads", *threads, "threads measuring slices concurrently")->check(CLI::Range(1, 256));

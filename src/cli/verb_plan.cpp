@@ -18,6 +18,7 @@
 #include "core/errors.hpp"
 #include "core/log.hpp"
 #include "fft/planning.hpp"
+#include "core/output_file.hpp"
 #ifdef SPINFLIP_HAVE_DRIVER
 #include "campaign/driver.hpp"
 #include "catalogue/hdf5.hpp"
@@ -120,7 +121,8 @@ RegisterVerb plan_verb(
       sub.add_flag("--scan", a->scan,
                    "with [ingest]: read every cone file's data too and report NaN/Inf (slow for big files)");
       sub.add_option("--points-csv", a->points_csv,
-                     "write the design points (point, design, role, seed_point, parameters...) to this CSV file");
+                     "also write the design points (point, design, role, seed_point, parameters...) to this CSV file "
+                     "(default: none)");
       return [a]() {
         const auto c = campaign::Campaign::load(a->campaign_file);
         campaign::PlanOptions opt;
@@ -136,10 +138,7 @@ RegisterVerb plan_verb(
 #endif
         if (world_rank() != 0) return report.problems.empty() ? 0 : 2;
         if (!a->points_csv.empty()) {
-          std::ofstream out(a->points_csv);
-          if (!out) throw IoError("--points-csv " + a->points_csv + ": cannot be written");
-          out << campaign::points_csv(c);
-          if (!out.flush()) throw IoError("--points-csv " + a->points_csv + ": write failed");
+          core::write_text_file(a->points_csv, campaign::points_csv(c), "--points-csv");
         }
         for (const auto& line : report.lines) std::cout << line << "\n";
         std::cout.flush();

@@ -1,8 +1,8 @@
 // spinflip run CAMPAIGN [-o CATALOGUE] [--group-size G] [--retry-failed]: the
 // campaign's task farm under mpirun/srun (campaign/driver.hpp, docs/driver.md).
-// Resumes an existing catalogue of the same campaign; exits 0 also when a
-// signal stopped it early (the catalogue is resumable; `spinflip status
-// --require-complete` tells whether work is left).
+// Resumes an existing catalogue of the same campaign. Exits 0 when the work
+// list is done (or --max-entries reached), 3 when SIGINT/SIGTERM/SIGUSR1
+// stopped it early (the catalogue is whole and resumable), 2 on a user error.
 #ifdef SPINFLIP_HAVE_DRIVER
 #include <memory>
 #include <optional>
@@ -26,7 +26,9 @@ RegisterVerb run_verb(
     "run", "run (or resume) a campaign into its catalogue, under mpirun/srun", 20, [](CLI::App& sub) -> VerbRun {
       auto a = std::make_shared<RunArgs>();
       sub.add_option("campaign", a->campaign_file, "campaign file (TOML)")->required();
-      sub.add_option("-o,--output", a->output, "catalogue path (default: the campaign's campaign.output)");
+      sub.add_option("-o,--output", a->output,
+                     "the catalogue written or resumed (default: the campaign's campaign.output); also writes "
+                     "<catalogue>.progress.json and <catalogue>.lock beside it");
       sub.add_option("--group-size", a->group_size,
                      "ranks sharing one light cone (default: campaign.group_size); must divide the rank count")
           ->check(CLI::PositiveNumber);
@@ -45,8 +47,8 @@ RegisterVerb run_verb(
         opt.retry_failed = a->retry_failed;
         opt.memory_limit_gb = a->memory_limit_gb;
         opt.max_entries = a->max_entries;
-        campaign::run(c, opt, MPI_COMM_WORLD);
-        return 0;
+        const campaign::RunResult r = campaign::run(c, opt, MPI_COMM_WORLD);
+        return r.stopped_early && r.signal != 0 ? campaign::exit_stopped : 0;
       };
     });
 

@@ -9,6 +9,7 @@
 #include <sstream>
 
 #include "core/errors.hpp"
+#include "core/printable.hpp"
 
 namespace spinflip::core {
 
@@ -428,7 +429,7 @@ Config Config::from_string(std::string text, std::string source_name, const Sche
     impl->table = toml::parse(impl->text, impl->source_name);
   } catch (const toml::parse_error& e) {
     throw ConfigError(impl->source_name + ":" + std::to_string(e.source().begin.line) +
-                      ": not valid TOML: " + std::string(e.description()));
+                      ": not valid TOML: " + printable(e.description(), 200));
   }
   validate_table(*impl, impl->table, "");
   return Config(std::move(impl));

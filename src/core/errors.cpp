@@ -1,10 +1,28 @@
 #include "core/errors.hpp"
+#include "core/printable.hpp"
 
 #include <mpi.h>
 
 #include <filesystem>
 
 namespace spinflip {
+
+std::string printable(std::string_view text, std::size_t max) {
+  std::string out;
+  for (const char ch : text) {
+    if (out.size() >= max) return out + "…";
+    const auto c = static_cast<unsigned char>(ch);
+    if (c >= 0x20 && c < 0x7f) {
+      out += ch;
+    } else {
+      static const char hex[] = "0123456789abcdef";
+      out += "\\x";
+      out += hex[c >> 4];
+      out += hex[c & 15];
+    }
+  }
+  return out;
+}
 
 std::string where(const std::source_location& loc) {
   return std::filesystem::path(loc.file_name()).filename().string() + ":" + std::to_string(loc.line());

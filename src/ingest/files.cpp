@@ -14,6 +14,7 @@
 #include <utility>
 
 #include "core/errors.hpp"
+#include "core/printable.hpp"
 #include "cosmo/cosmology.hpp"
 #include "ingest/internal.hpp"
 #include "stats/npy.hpp"
@@ -200,7 +201,7 @@ FileHeader raw_header(const std::filesystem::path& file) {
     t = toml::parse_file(side.string());
   } catch (const toml::parse_error& e) {
     throw InputError(where + ":" + std::to_string(e.source().begin.line) + ": not valid TOML: " +
-                     std::string(e.description()));
+                     printable(e.description(), 200));
   }
   for (auto&& [key, node] : t) {
     const std::string k(key.str());

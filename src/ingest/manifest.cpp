@@ -10,6 +10,7 @@
 #include <toml++/toml.h>
 
 #include "core/errors.hpp"
+#include "core/printable.hpp"
 #include "ingest/internal.hpp"
 
 namespace spinflip::ingest {
@@ -199,7 +200,7 @@ void read_toml(const std::string& text, Manifest& m) {
     doc = toml::parse(text, src);
   } catch (const toml::parse_error& e) {
     m.problems.push_back(src + ":" + std::to_string(e.source().begin.line) + ": not valid TOML: " +
-                         std::string(e.description()));
+                         printable(e.description(), 200));
     return;
   }
   for (auto&& [key, node] : doc)

@@ -1,5 +1,6 @@
 #include "jobscript/jobscript.hpp"
 
+#include <algorithm>
 #include <regex>
 
 #include "core/errors.hpp"
@@ -64,8 +65,8 @@ void validate(const Request& r) {
                         std::to_string(ranks) + " ranks (--nodes x --ranks-per-node)");
   }
   const long wall = walltime_seconds(r.walltime);
-  if (r.signal_lead_seconds < 1 || r.signal_lead_seconds >= wall)
-    throw ConfigError("--signal-lead-seconds " + std::to_string(r.signal_lead_seconds) +
+  if (r.signal_lead_seconds && (*r.signal_lead_seconds < 1 || *r.signal_lead_seconds >= wall))
+    throw ConfigError("--signal-lead-seconds " + std::to_string(*r.signal_lead_seconds) +
                       " is not allowed: use 1 to " + std::to_string(wall - 1) + " (less than --walltime " +
                       r.walltime + ")");
   if (r.launcher != "srun" && r.launcher != "mpirun")
@@ -82,6 +83,10 @@ void validate(const Request& r) {
     if (p->empty() || p->front() != '/') throw InternalError("jobscript request path '" + *p + "' is not absolute");
 }
 
+int default_signal_lead(long walltime_seconds) {
+  return static_cast<int>(std::clamp(walltime_seconds / 4, 1L, 120L));
+}
+
 std::map<std::string, std::string> placeholders(const Request& r) {
   const bool slurm = r.scheduler == Scheduler::slurm;
   std::map<std::string, std::string> v;
@@ -92,7 +97,8 @@ std::map<std::string, std::string> placeholders(const Request& r) {
   v["RANKS"] = std::to_string(long(r.nodes) * r.ranks_per_node);
   v["WALLTIME"] = r.walltime;
   v["WALLTIME_SECONDS"] = std::to_string(walltime_seconds(r.walltime));
-  v["SIGNAL_LEAD_SECONDS"] = std::to_string(r.signal_lead_seconds);
+  v["SIGNAL_LEAD_SECONDS"] =
+      std::to_string(r.signal_lead_seconds.value_or(default_signal_lead(walltime_seconds(r.walltime))));
   v["CHAIN"] = std::to_string(r.chain);
   const std::string prefix = slurm ? "#SBATCH " : "#PBS ";
   v["ACCOUNT_DIRECTIVE"] = r.account ? prefix + (slurm ? "--account=" : "-A ") + *r.account : "# (no account)";

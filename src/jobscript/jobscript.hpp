@@ -31,9 +31,13 @@ struct Request {
   std::string env_setup;                // shell code run before the launch
   std::string launcher = "srun";        // srun | mpirun
   std::string srun_mpi = "pmix";
-  int signal_lead_seconds = 120;
+  std::optional<int> signal_lead_seconds;  // unset: default_signal_lead(walltime)
   std::string after;                    // shell code run once the catalogue is complete
 };
+
+/// The warning lead when none is given: a quarter of the wall time, at most
+/// 120 s (long enough for the entry in progress, short enough for short jobs).
+int default_signal_lead(long walltime_seconds);
 
 /// One shell word that a POSIX shell reads back as exactly `value`
 /// (single quotes, with ' written as '\''), like bash's printf %q.

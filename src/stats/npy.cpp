@@ -5,8 +5,10 @@
 #include <cstdint>
 #include <cstring>
 #include <fstream>
+#include <system_error>
 
 #include "core/errors.hpp"
+#include "core/printable.hpp"
 
 namespace spinflip::stats {
 namespace {
@@ -41,14 +43,14 @@ void parse_npy_header(const std::string& header, const std::string& where, std::
                       std::vector<std::size_t>& shape) {
   std::string d = dict_value(header, "descr", where);
   if (d.size() < 2 || (d.front() != '\'' && d.front() != '"'))
-    throw InputError(where + ": .npy descr " + d + " is not a simple dtype string");
+    throw InputError(where + ": .npy descr " + printable(d) + " is not a simple dtype string");
   descr = d.substr(1, d.size() - 2);
   const std::string f = dict_value(header, "fortran_order", where);
-  if (f != "True" && f != "False") throw InputError(where + ": .npy fortran_order = " + f + " is not True/False");
+  if (f != "True" && f != "False") throw InputError(where + ": .npy fortran_order = " + printable(f) + " is not True/False");
   fortran = f == "True";
   std::string s = dict_value(header, "shape", where);
   if (s.size() < 2 || s.front() != '(' || s.back() != ')')
-    throw InputError(where + ": .npy shape " + s + " is not a tuple");
+    throw InputError(where + ": .npy shape " + printable(s) + " is not a tuple");
   s = s.substr(1, s.size() - 2);
   shape.clear();
   std::size_t pos = 0;
@@ -57,7 +59,7 @@ void parse_npy_header(const std::string& header, const std::string& where, std::
     const std::string item = trim(s.substr(pos, comma == std::string::npos ? std::string::npos : comma - pos));
     if (!item.empty()) {
       if (!std::all_of(item.begin(), item.end(), [](char c) { return c >= '0' && c <= '9'; }) || item.size() > 15)
-        throw InputError(where + ": .npy shape entry '" + item + "' is not a dimension");
+        throw InputError(where + ": .npy shape entry '" + printable(item) + "' is not a dimension");
       shape.push_back(std::stoull(item));
     }
     if (comma == std::string::npos) break;
@@ -85,6 +87,13 @@ NpyArray read_npy(const std::filesystem::path& path) {
   } else {
     throw InputError(where + ": .npy format version " + std::to_string(major) + " is not supported (1, 2 or 3)");
   }
+  // Sizes from the file are checked against its length before anything is
+  // allocated (a damaged length field must not ask for gigabytes).
+  std::error_code ec;
+  const std::uintmax_t file_size = std::filesystem::file_size(path, ec);
+  const std::uintmax_t header_end = static_cast<std::uintmax_t>(in.tellg()) + header_len;
+  if (ec || header_end > file_size)
+    throw InputError(where + ": truncated .npy header (needs " + std::to_string(header_len) + " bytes)");
   std::string header(header_len, '\0');
   if (!in.read(header.data(), header_len))
     throw InputError(where + ": truncated .npy header (needs " + std::to_string(header_len) + " bytes)");
@@ -96,12 +105,19 @@ NpyArray read_npy(const std::filesystem::path& path) {
   const std::string& t = a.dtype;
   if (t.size() != 3 || (t[0] != '<' && t[0] != '>' && t[0] != '=' && t[0] != '|') || t[1] != 'f' ||
       (t[2] != '4' && t[2] != '8'))
-    throw InputError(where + ": dtype '" + t + "' is not supported (float32 '<f4' or float64 '<f8', either byte order)");
+    throw InputError(where + ": dtype '" + printable(t) + "' is not supported (float32 '<f4' or float64 '<f8', either byte order)");
   const std::size_t width = t[2] == '4' ? 4 : 8;
   const bool swap = (t[0] == '>' && std::endian::native == std::endian::little) ||
                     (t[0] == '<' && std::endian::native == std::endian::big);
-  std::size_t n = 1;
-  for (auto s : a.shape) n *= s;
+  const std::uintmax_t data_bytes = file_size - header_end;
+  std::uintmax_t need = width;
+  bool overflow = false;
+  for (auto s : a.shape) overflow |= __builtin_mul_overflow(need, static_cast<std::uintmax_t>(s), &need);
+  if (overflow || need > data_bytes)
+    throw InputError(where + ": data truncated: shape needs " +
+                     (overflow ? std::string("more than 2^64") : std::to_string(need)) + " bytes, file has " +
+                     std::to_string(data_bytes));
+  const std::size_t n = need / width;
   std::vector<unsigned char> raw(n * width);
   if (!in.read(reinterpret_cast<char*>(raw.data()), static_cast<std::streamsize>(raw.size())))
     throw InputError(where + ": data truncated: shape needs " + std::to_string(raw.size()) + " bytes, file has " +

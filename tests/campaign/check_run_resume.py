@@ -96,7 +96,7 @@ with tempfile.TemporaryDirectory() as tmp:
         check(p.returncode == 2 and "in use by another spinflip run" in p.stderr, f"locked catalogue refused ({p.stderr})")
     check(not compare(ref, part), "refused catalogue unchanged")
 
-    # 3. SIGUSR1 to mpiexec: every rank finishes its entry, exit 0, resumable.
+    # 3. SIGUSR1 to mpiexec: every rank finishes its entry, exit 3, resumable.
     #    jobs/tiny with more realisations and a short progress interval, so the
     #    signal surely lands while entries remain.
     longer = os.path.join(tmp, "longer.toml")
@@ -110,8 +110,8 @@ with tempfile.TemporaryDirectory() as tmp:
     check(started, "longer tiny run got going")
     proc.send_signal(signal.SIGUSR1)
     _, err = proc.communicate(timeout=120)
-    check(proc.returncode == 0 and "stopped early on SIGUSR1" in err and "resumable" in err,
-          f"SIGUSR1: exit 0, says it stopped and is resumable ({proc.returncode}: {err[-1500:]})")
+    check(proc.returncode == 3 and "stopped early on SIGUSR1" in err and "resumable" in err,
+          f"SIGUSR1: exit 3, says it stopped and is resumable ({proc.returncode}: {err[-1500:]})")
     n_done = consistent(usr, "SIGUSR1")
     check(0 < n_done < 54, f"SIGUSR1 stopped the run part way ({n_done} of 54 done)")
     check(spinflip("status", usr, "--require-complete").returncode == 3, "status exits 3 after SIGUSR1")
@@ -122,13 +122,13 @@ with tempfile.TemporaryDirectory() as tmp:
     diff = compare(tiny_ref, usr)
     check(not diff, f"SIGUSR1 + resume = uninterrupted: {diff}")
 
-    # 4. SIGTERM to a single-process run: abandons the entry in progress, exit 0.
+    # 4. SIGTERM to a single-process run: abandons the entry in progress, exit 3.
     term = os.path.join(tmp, "term.h5")
     proc = subprocess.Popen(command(["run", SMALL, "-o", term]), stderr=subprocess.PIPE, text=True)
     wait_done(term, 3, proc)
     proc.send_signal(signal.SIGTERM)
     _, err = proc.communicate(timeout=120)
-    check(proc.returncode == 0 and "stopped early on SIGTERM" in err, f"SIGTERM: exit 0 ({proc.returncode}: {err[-800:]})")
+    check(proc.returncode == 3 and "stopped early on SIGTERM" in err, f"SIGTERM: exit 3 ({proc.returncode}: {err[-800:]})")
     consistent(term, "SIGTERM")
 
     # 5. kill -9 of one rank at random moments, ten times over, then a last run:

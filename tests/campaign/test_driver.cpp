@@ -63,3 +63,20 @@ TEST(DriverSignals, UsrOneThenTermKeepsTheStrongerRequest) {
   EXPECT_EQ(stop_signal(), SIGTERM);
   reset_stop_signal();
 }
+
+TEST(DriverSignals, CtrlCIsACleanStopThatAbandonsTheEntry) {
+  // Issue 19: SIGINT is caught like SIGTERM (the entry in progress is abandoned,
+  // the run stops resumably) instead of ending the process.
+  install_stop_handlers();
+  reset_stop_signal();
+  std::raise(SIGUSR1);
+  std::raise(SIGINT);
+  EXPECT_EQ(stop_signal(), SIGINT);  // abandon beats finish
+  EXPECT_TRUE(abandons_entry(SIGINT));
+  EXPECT_TRUE(abandons_entry(SIGTERM));
+  EXPECT_FALSE(abandons_entry(SIGUSR1));
+  EXPECT_EQ(signal_name(SIGINT), "SIGINT");
+  EXPECT_EQ(signal_name(SIGUSR1), "SIGUSR1");
+  EXPECT_EQ(exit_stopped, 3);  // docs/driver.md: the status of a signal stop
+  reset_stop_signal();  // (a second SIGINT would end the test process: not raised here)
+}

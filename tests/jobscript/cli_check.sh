@@ -11,19 +11,19 @@ printf '[campaign]\nseed = 1\n' > "$dir/camp.toml"
 fail() { echo "FAIL: $*"; exit 1; }
 
 cd "$tmp" || exit 1
-out=$("$spinflip" jobscript "$dir/camp.toml" --walltime 00:10:00 --chain 3 --output "$dir/jobs" \
+out=$("$spinflip" jobscript "$dir/camp.toml" --walltime 00:10:00 --chain 3 -o "$dir/jobs/" \
       --env-setup 'echo "env $(echo ok)"' --after 'echo analysis') || fail "jobscript refused a good request: $out"
 [ -f "$dir/jobs/camp.slurm" ] || fail "no script written: $out"
 bash -n "$dir/jobs/camp.slurm" || fail "slurm script has a syntax error"
 [ -e "$tmp/pwned" ] && fail "a path was interpolated into a shell"
-"$spinflip" jobscript "$dir/camp.toml" --scheduler pbs --walltime 00:10:00 --output "$dir/jobs" >/dev/null \
+"$spinflip" jobscript "$dir/camp.toml" --scheduler pbs --walltime 00:10:00 -o "$dir/jobs/" >/dev/null \
   || fail "pbs refused"
 bash -n "$dir/jobs/camp.pbs" || fail "pbs script has a syntax error"
 
 refuse() {  # refuse "what" args...: exit 2 and a one-line message naming the option
   local what=$1; shift
   local err
-  err=$("$spinflip" jobscript "$dir/camp.toml" --output "$dir/jobs" "$@" 2>&1 >/dev/null)
+  err=$("$spinflip" jobscript "$dir/camp.toml" -o "$dir/jobs/" "$@" 2>&1 >/dev/null)
   local rc=$?
   [ "$rc" -eq 2 ] || fail "$what: exit $rc, expected 2 ($err)"
   [ "$(printf '%s\n' "$err" | wc -l)" -eq 1 ] || fail "$what: message is not one line: $err"

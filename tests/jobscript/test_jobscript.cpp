@@ -130,3 +130,17 @@ TEST(Render, ValuesReachTheShellUnchanged) {
   EXPECT_NE(script.find("#SBATCH --time=00:05:00"), std::string::npos);
   EXPECT_NE(script.find("#SBATCH --account=astro-21cm"), std::string::npos);
 }
+
+TEST(SignalLead, DefaultFollowsTheWallTime) {
+  // Issue 19: a one-minute job must not be refused for a lead the user never gave.
+  EXPECT_EQ(sj::default_signal_lead(60), 15);     // a quarter of the wall time
+  EXPECT_EQ(sj::default_signal_lead(400), 100);
+  EXPECT_EQ(sj::default_signal_lead(3600), 120);  // capped: enough for any entry of the demo
+  auto r = tricky_request();
+  r.walltime = "00:01:00";
+  r.signal_lead_seconds.reset();
+  EXPECT_NO_THROW(sj::validate(r));
+  EXPECT_NE(sj::render(r).find("#SBATCH --signal=B:USR1@15\n"), std::string::npos);
+  r.signal_lead_seconds = 60;  // given by the user: still checked against the wall time
+  EXPECT_THROW(sj::validate(r), spinflip::ConfigError);
+}

@@ -27,6 +27,25 @@ std::vector<Selection> selections(const Catalogue& cat, const std::vector<std::s
 void drop_degenerate(const Catalogue& cat, Selection& sel, Eigen::MatrixXd& reference,
                      std::vector<Eigen::MatrixXd*> others);
 
+/// Condition number of the correlation matrix (scale-free: coefficients of very
+/// different sizes do not raise it) above which covariance and fisher refuse a
+/// selection (docs/analysis.md, "Conditioning"); above warn_condition they warn.
+inline constexpr double max_condition = 1e6;
+inline constexpr double warn_condition = 1e4;
+
+/// Condition numbers of a selection's covariance and its correlation matrix, and a
+/// one-line cause for a large one: more coefficients than realisations, a (near)
+/// zero-variance coefficient, P and delta2 of one bin together, or the coefficients
+/// that carry the near-null direction (each named).
+struct Conditioning {
+  double covariance = 0, correlation = 0;
+  std::string cause;
+};
+Conditioning conditioning(const Catalogue& cat, const Selection& sel, const Eigen::MatrixXd& cov, std::size_t n);
+/// Warn above warn_condition; above max_condition an InputError with the cause and the
+/// ways out (--shrink, fewer coefficients, more realisations).
+void check_conditioning(const Conditioning& c, const std::string& selection);
+
 /// A transform fitted on the fiducial rows and applied to any rows.
 struct Transformer {
   Transform kind = Transform::none;
@@ -83,6 +102,7 @@ struct FisherModel {
   Eigen::VectorXd mean;
   Eigen::MatrixXd cov, precision;    // precision includes the Hartlap factor (unless shrunk)
   double hartlap = 1;
+  Conditioning conditioning;         // of cov
   Eigen::MatrixXd derivatives;       // d × n_fisher_params at the chosen step
   Eigen::MatrixXd fisher;
   Transformer transform;

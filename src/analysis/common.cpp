@@ -84,7 +84,7 @@ std::vector<Selection> selections(const Catalogue& cat, const std::vector<std::s
 }
 
 void drop_degenerate(const Catalogue& cat, Selection& sel, Eigen::MatrixXd& reference,
-                     std::vector<Eigen::MatrixXd*> others) {
+                     std::vector<Eigen::MatrixXd*> others, bool drop_constant, const std::string& what) {
   const auto labels = element_labels(cat, sel);
   std::vector<Eigen::Index> keep;
   std::size_t n_nan = 0, n_const = 0;
@@ -100,7 +100,7 @@ void drop_degenerate(const Catalogue& cat, Selection& sel, Eigen::MatrixXd& refe
     if (nan > 0 || partial_other)
       throw InputError(cat.path() + ": coefficient " + labels[static_cast<std::size_t>(c)] +
                        " is NaN in some done entries only; exclude it with an axis filter in --select '" + sel.text + "'");
-    if (col.maxCoeff() == col.minCoeff()) {
+    if (drop_constant && col.maxCoeff() == col.minCoeff()) {
       ++n_const;
       continue;
     }
@@ -108,8 +108,8 @@ void drop_degenerate(const Catalogue& cat, Selection& sel, Eigen::MatrixXd& refe
   }
   if (n_nan + n_const == 0) return;
   if (keep.empty())
-    throw InputError("--select '" + sel.text + "': every selected coefficient is NaN or constant over the fiducial "
-                     "realisations, so there is nothing to analyse");
+    throw InputError("--select '" + sel.text + "': every selected coefficient is NaN or constant over the " + what +
+                     "s, so there is nothing to analyse");
   std::vector<Element> els;
   for (auto c : keep) els.push_back(sel.elements[static_cast<std::size_t>(c)]);
   sel.elements = std::move(els);
@@ -131,9 +131,10 @@ void drop_degenerate(const Catalogue& cat, Selection& sel, Eigen::MatrixXd& refe
   };
   std::ostringstream note;
   note << "dropped";
-  if (n_nan) note << " " << n_nan << " coefficient(s) NaN in every fiducial realisation (no kept mode): " << names(true);
+  if (n_nan) note << " " << n_nan << " NaN coefficients (NaN in every " << what << "; an instrument kept no mode of that bin): "
+                    << names(true);
   if (n_nan && n_const) note << ";";
-  if (n_const) note << " " << n_const << " constant coefficient(s) (no information): " << names(false);
+  if (n_const) note << " " << n_const << " constant coefficients (no information): " << names(false);
   sel.notes.push_back(note.str());
   log::warn("selection '{}': {}", sel.name, note.str());
   auto compact = [&](Eigen::MatrixXd& m) {
@@ -224,8 +225,9 @@ Conditioning conditioning(const Catalogue& cat, const Selection& sel, const Eige
 }
 
 void check_conditioning(const Conditioning& c, const std::string& selection) {
-  char num[32];
-  std::snprintf(num, sizeof num, "%.3g", c.correlation);
+  char num[48];
+  if (std::isfinite(c.correlation)) std::snprintf(num, sizeof num, "%.3g", c.correlation);
+  else std::snprintf(num, sizeof num, "infinite (singular)");
   if (c.correlation > max_condition || !std::isfinite(c.correlation)) {
     char lim[32];
     std::snprintf(lim, sizeof lim, "%.0e", max_condition);
@@ -235,6 +237,23 @@ void check_conditioning(const Conditioning& c, const std::string& selection) {
   }
   if (c.correlation > warn_condition)
     log::warn("selection '{}': correlation-matrix condition number {} ({})", selection, num, c.cause);
+}
+
+PartialOutput::PartialOutput(std::string path) : path_(std::move(path)), file_(h5::create_file(path_ + ".partial")) {}
+
+PartialOutput::~PartialOutput() {
+  if (done_) return;
+  file_.reset();
+  std::error_code ec;
+  std::filesystem::remove(path_ + ".partial", ec);
+}
+
+void PartialOutput::commit() {
+  file_.reset();
+  std::error_code ec;
+  std::filesystem::rename(path_ + ".partial", path_, ec);
+  if (ec) throw IoError(path_ + ": cannot rename the finished output onto it (" + ec.message() + ")");
+  done_ = true;
 }
 
 void require_realisations(std::size_t n, std::size_t p, const std::string& selection, bool shrink) {

@@ -20,7 +20,7 @@ void run_covariance(const CovarianceOptions& o) {
   if (entries.size() < 2)
     throw InputError(cat.path() + ": fiducial point " + std::to_string(fid) + " has " + std::to_string(entries.size()) +
                      " done realisations; a covariance needs at least 2");
-  h5::Id out = h5::create_file(o.output);
+  detail::PartialOutput out(o.output);
   detail::write_output_header(out.get(), cat, "covariance");
   h5::write_attr(out.get(), "fiducial_point", fid);
   std::vector<std::string> names;
@@ -85,13 +85,13 @@ void run_covariance(const CovarianceOptions& o) {
     char hartlap_text[96];
     if (hf > 0) std::snprintf(hartlap_text, sizeof hartlap_text, "%.4f", hf);
     else std::snprintf(hartlap_text, sizeof hartlap_text, "undefined (needs n >= p + 3 = %zu)", p + 3);
-    std::printf("  realisations %zu, condition number %.4g (correlation matrix %.4g), Hartlap factor %s%s%s\n", n,
-                cond, conditioning.correlation, hartlap_text, o.shrink ? " (not applied: shrunk)" : "",
+    std::printf("  realisations %zu, condition number %.4g (of the correlation matrix), Hartlap factor %s%s%s\n", n,
+                conditioning.correlation, hartlap_text, o.shrink ? " (not applied: shrunk)" : "",
                 have_precision ? "" : " — precision not written");
     if (o.shrink) std::printf("  Ledoit-Wolf shrinkage intensity %.4f\n", intensity);
   }
   h5::write_attr(out.get(), "selections", names);
-  out.reset();  // the plot script reads the closed file
+  out.commit();  // closed: the plot script reads it
   std::printf("wrote %s\n", o.output.c_str());
   std::fflush(stdout);
   if (o.plot) {

@@ -97,6 +97,7 @@ void run_export(const ExportOptions& o) {
   for (auto s : e_split) ++counts[s];
   for (auto& sel : sels) {
     Eigen::MatrixXd X = cat.load(sel, entries);
+    detail::drop_degenerate(cat, sel, X, {}, false, "exported entry");  // bins without a kept mode
     if (X.hasNaN())
       throw InputError("--select '" + sel.text + "': some exported coefficients are NaN (e.g. empty power-spectrum "
                        "bins); exclude them with an axis filter such as n_modes=1:");

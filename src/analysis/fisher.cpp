@@ -274,7 +274,7 @@ void run_fisher(const FisherOptions& o) {
   const auto np = st.params.size();
   if (o.tolerance <= 0) throw InputError("--tolerance " + std::to_string(o.tolerance) + " must be > 0");
 
-  h5::Id out = h5::create_file(o.output);
+  detail::PartialOutput out(o.output);
   detail::write_output_header(out.get(), cat, "fisher");
   std::vector<std::string> pnames, punits;
   std::vector<double> pfid;
@@ -408,7 +408,7 @@ void run_fisher(const FisherOptions& o) {
     rows.push_back(std::move(row));
   }
   h5::write_attr(out.get(), "selections", names);
-  out.reset();
+  out.commit();  // closed: the plot script reads it
 
   // The comparison table: one column per selection, marginalised (conditional) 1σ.
   std::printf("Fisher forecast: fiducial point %lld, %zu realisations, step index %lld\n",

@@ -21,11 +21,13 @@ std::int64_t fiducial_point(const Catalogue& cat, std::optional<std::int64_t> ch
 /// Every --select resolved (one "all" selection when none is given).
 std::vector<Selection> selections(const Catalogue& cat, const std::vector<std::string>& texts);
 
-/// Drop columns that are NaN in every row of `reference` or constant there
-/// (empty bins, k = 0 terms), noting them in the selection; a NaN in some rows
-/// only is an InputError. `others` lose the same columns.
+/// Drop columns that are NaN in every row of `reference` (bins without a kept mode,
+/// DESIGN.md §5) or, with drop_constant, constant there (k = 0 terms), with a one-line
+/// note naming them in the selection and the log; a NaN in some rows only is an
+/// InputError. `others` lose the same columns. `what` names a row in messages.
 void drop_degenerate(const Catalogue& cat, Selection& sel, Eigen::MatrixXd& reference,
-                     std::vector<Eigen::MatrixXd*> others);
+                     std::vector<Eigen::MatrixXd*> others, bool drop_constant = true,
+                     const std::string& what = "fiducial realisation");
 
 /// Condition number of the correlation matrix (scale-free: coefficients of very
 /// different sizes do not raise it) above which covariance and fisher refuse a
@@ -53,6 +55,22 @@ struct Transformer {
   void fit(const Eigen::MatrixXd& fiducial);
   void apply(Eigen::MatrixXd& X, const std::string& what) const;
   std::string describe() const;
+};
+
+/// An output file written as `<path>.partial` and renamed when complete, so a verb
+/// that refuses or fails half-way leaves no half-written file and an older one intact.
+class PartialOutput {
+ public:
+  explicit PartialOutput(std::string path);
+  ~PartialOutput();  // not committed: close and remove the partial file
+  PartialOutput(const PartialOutput&) = delete;
+  PartialOutput& operator=(const PartialOutput&) = delete;
+  hid_t get() const { return file_.get(); }
+  void commit();  // close and rename onto the path
+ private:
+  std::string path_;
+  h5::Id file_;
+  bool done_ = false;
 };
 
 /// Refuse an inverse from too few realisations, saying how many are needed.

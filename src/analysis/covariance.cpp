@@ -59,7 +59,7 @@ void run_covariance(const CovarianceOptions& o) {
     h5::write_attr(g.get(), "n_data", static_cast<std::int64_t>(p));
     h5::write_attr(g.get(), "condition_number", cond);
     h5::write_attr(g.get(), "correlation_condition_number", conditioning.correlation);
-    h5::write_attr(g.get(), "hartlap_factor", o.shrink ? std::max(0.0, hartlap_factor(n, p)) : hartlap);
+    h5::write_attr(g.get(), "hartlap_factor", std::max(0.0, o.shrink ? hartlap_factor(n, p) : hartlap));
     h5::write_attr(g.get(), "hartlap_applied", static_cast<std::int64_t>(!o.shrink));
     h5::write_attr(g.get(), "shrinkage", std::string(o.shrink ? "ledoit-wolf-2004" : "none"));
     h5::write_attr(g.get(), "shrinkage_intensity", intensity);

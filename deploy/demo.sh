@@ -37,15 +37,16 @@ step "covariance of the fiducial realisations -> $out/covariance.h5 and its pict
     --select 'name=S1 nextgen wedge;kernel=scattering;order=1;scenario=nextgen_1000h_wedge;every=3'
 
 # The Fisher comparison, one table per scenario: the same columns for each, so a new
-# statistic is one more line in columns(). S2 keeps δ = l2 − l1 = 0 (l2=-1 is S1's).
+# statistic is one more line in columns(). S2 keeps δ = l2 − l1 = 0 (l2=-1 is S1's); scattering
+# leaves out the smallest scale j1 = 0, which the wedge scenarios empty (only rounding residue is left).
 columns() {
     local s=$1
     printf '%s\n' \
         "--select" "name=P(k);kernel=power;quantity=0;scenario=$s;every=2" \
-        "--select" "name=S1;kernel=scattering;order=1;scenario=$s;every=3" \
-        "--select" "name=S1+S2;kernel=scattering;order=1,2;l2=-1,0;scenario=$s;every=5" \
-        "--select" "name=P(k)+S1;kernel=power,scattering;quantity=0;order=1;scenario=$s;every=3" \
-        "--select" "name=P(k)+S1+S2;kernel=power,scattering;quantity=0;order=1,2;l2=-1,0;scenario=$s;every=5"
+        "--select" "name=S1;kernel=scattering;order=1;j1=1:;scenario=$s;every=3" \
+        "--select" "name=S1+S2;kernel=scattering;order=1,2;l2=-1,0;j1=1:;scenario=$s;every=5" \
+        "--select" "name=P(k)+S1;kernel=power,scattering;quantity=0;order=1;j1=1:;scenario=$s;every=3" \
+        "--select" "name=P(k)+S1+S2;kernel=power,scattering;quantity=0;order=1,2;l2=-1,0;j1=1:;scenario=$s;every=5"
 }
 step "Fisher forecasts: which statistic constrains the sources best, clean and under each instrument"
 for s in clean nextgen_1000h nextgen_1000h_wedge current_1000h_wedge; do
@@ -53,7 +54,7 @@ for s in clean nextgen_1000h nextgen_1000h_wedge current_1000h_wedge; do
     mapfile -t sel < <(columns "$s")
     extra=()
     # The cadence comparison: S1 of every slice against every third one (clean cone).
-    [[ $s == clean ]] && extra=(--select "name=S1 every slice;kernel=scattering;order=1;scenario=$s;every=1")
+    [[ $s == clean ]] && extra=(--select "name=S1 every slice;kernel=scattering;order=1;j1=1:;scenario=$s;every=1")
     "$spinflip" fisher "$out/demo.h5" -o "$out/fisher_$s.h5" --combined "${sel[@]}" "${extra[@]}" \
         | tee "$out/fisher_$s.txt"
     # The table must come from invertible covariances: no inf, no negative Hartlap factor.

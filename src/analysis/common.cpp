@@ -184,17 +184,31 @@ Conditioning conditioning(const Catalogue& cat, const Selection& sel, const Eige
               " realisations: a sample covariance has rank at most n - 1 = " + std::to_string(n - 1);
     return c;
   }
-  // A coefficient whose variance is tiny next to the others (e.g. a bin the instrument
-  // emptied but that still holds rounding noise) dominates the smallest eigenvalue.
-  const Eigen::VectorXd var = cov.diagonal();
-  Eigen::Index lo = 0;
-  var.minCoeff(&lo);
-  if (!(var(lo) > 1e-12 * var.maxCoeff())) {
-    c.cause = "coefficient " + labels[static_cast<std::size_t>(lo)] + " has (nearly) zero variance";
-    return c;
+  // A coefficient whose spread is tiny next to the others of its kernel and quantity
+  // (e.g. a bin the instrument emptied that still holds rounding residue) makes the
+  // covariance singular in all but name, though its correlations look harmless.
+  const auto& blocks = cat.blocks();
+  {
+    std::map<std::pair<std::size_t, double>, std::vector<double>> groups;
+    auto group_of = [&](std::size_t a) {
+      const auto& e = sel.elements[a];
+      const auto q = blocks[e.block].axes.find("quantity");
+      return std::pair{e.block, q == blocks[e.block].axes.end() ? -1.0 : q->second[e.coeff]};
+    };
+    for (std::size_t a = 0; a < p; ++a) groups[group_of(a)].push_back(std::sqrt(cov(a, a)));
+    for (auto& [key, sds] : groups) std::sort(sds.begin(), sds.end());
+    for (std::size_t a = 0; a < p; ++a) {
+      const auto& sds = groups[group_of(a)];
+      const double median = sds[sds.size() / 2];
+      if (sds.size() >= 3 && !(std::sqrt(cov(a, a)) > 1e-6 * median)) {
+        c.cause = "coefficient " + labels[a] + " has (nearly) zero variance next to the rest of its kernel "
+                  "(a bin without kept modes from a catalogue made before observed modes? select it out)";
+        c.vanishing = true;
+        return c;
+      }
+    }
   }
   // P and delta2 of one bin and unit are the same modes weighted differently.
-  const auto& blocks = cat.blocks();
   for (std::size_t a = 0; a < sel.elements.size(); ++a) {
     const auto& ea = sel.elements[a];
     const auto& b = blocks[ea.block];
@@ -228,6 +242,9 @@ void check_conditioning(const Conditioning& c, const std::string& selection) {
   char num[48];
   if (std::isfinite(c.correlation)) std::snprintf(num, sizeof num, "%.3g", c.correlation);
   else std::snprintf(num, sizeof num, "infinite (singular)");
+  if (c.vanishing)
+    throw InputError("selection '" + selection + "': " + c.cause + "; no forecast from a covariance that cannot be "
+                     "inverted: select fewer coefficients (an axis filter such as n_modes=1:), or pass --shrink");
   if (c.correlation > max_condition || !std::isfinite(c.correlation)) {
     char lim[32];
     std::snprintf(lim, sizeof lim, "%.0e", max_condition);

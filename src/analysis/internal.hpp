@@ -42,6 +42,10 @@ inline constexpr double warn_condition = 1e4;
 struct Conditioning {
   double covariance = 0, correlation = 0;
   std::string cause;
+  /// A coefficient whose spread is below 1e-6 of the median spread of its kernel (and
+  /// quantity) in the selection: rounding residue of an emptied bin, not a measurement.
+  /// Refused like an ill-conditioned correlation (its correlation hides it).
+  bool vanishing = false;
 };
 Conditioning conditioning(const Catalogue& cat, const Selection& sel, const Eigen::MatrixXd& cov, std::size_t n);
 /// Warn above warn_condition; above max_condition an InputError with the cause and the

@@ -66,4 +66,17 @@ make_catalogue.make(few, n_fid=20, n_stencil=8, n_train_points=4)
 p = run("covariance", few, "-s", "name=p;kernel=power", "--no-plot", "-o", os.path.join(d, "t.h5"), expect=2)
 last = p.stderr.strip().splitlines()[-1]
 check("24 coefficients from 20 realisations" in last and "delta2" not in last, f"the cause is the sample size: {last}")
+
+# 4. A bin holding rounding residue (the symptom of averaging removed modes as zeros): its
+# correlations look harmless, its spread is 1e-12 of its neighbours'. Refused, named.
+res = os.path.join(d, "residue.h5")
+make_catalogue.make(res, n_fid=60, n_stencil=8, n_train_points=4)
+with h5py.File(res, "r+") as f:
+    v = f["stats/deep/power/values"]
+    x = v[()]
+    x[:, 2, 0] = 2.3e-9 * (1 + 0.05 * np.random.default_rng(2).normal(size=x.shape[0]))
+    v[...] = x
+p = run("fisher", res, "-s", "name=p;kernel=power;scenario=deep", "--no-plot", "-o", os.path.join(d, "r.h5"), expect=2)
+last = p.stderr.strip().splitlines()[-1]
+check("deep/power u2" in last and "zero variance" in last, f"the vanishing coefficient is named and refused: {last}")
 finish()

@@ -29,24 +29,44 @@ mpiexec --oversubscribe -n "$ranks" "$spinflip" run "$campaign" -o "$out/demo.h5
 step "one light cone of the fiducial point, clean and observed, with its preview -> $out/cone.png"
 fiducial=$(awk -F, 'NR > 1 && $3 == "fiducial" { print $1; exit }' "$out/points.csv")
 "$spinflip" cone "$campaign" --point "${fiducial:-0}" --realisation 0 --fields x_hi \
-    --scenario deep --scenario shallow -o "$out/cone.h5" --preview "$out/cone.png"
+    --scenario nextgen_1000h_wedge --scenario current_1000h_wedge -o "$out/cone.h5" --preview "$out/cone.png"
 
 step "covariance of the fiducial realisations -> $out/covariance.h5 and its picture"
 "$spinflip" covariance "$out/demo.h5" -o "$out/covariance.h5" \
-    --select 'name=P(k) deep;kernel=power;quantity=0;scenario=deep;every=3' \
-    --select 'name=S1 deep;kernel=scattering;order=1;scenario=deep;every=3'
+    --select 'name=P(k) nextgen wedge;kernel=power;quantity=0;scenario=nextgen_1000h_wedge;every=2' \
+    --select 'name=S1 nextgen wedge;kernel=scattering;order=1;scenario=nextgen_1000h_wedge;every=3'
 
-step "Fisher forecasts: which statistic and which instrument constrain the sources best"
-"$spinflip" fisher "$out/demo.h5" -o "$out/fisher.h5" --combined \
-    --select 'name=P(k) perfect;kernel=power;quantity=0;scenario=perfect;every=3' \
-    --select 'name=P(k) deep;kernel=power;quantity=0;scenario=deep;every=3' \
-    --select 'name=S1 deep;kernel=scattering;order=1;scenario=deep;every=3' \
-    --select 'name=P(k)+S1 deep;kernel=power,scattering;quantity=0;order=1;scenario=deep;every=3' \
-    --select 'name=P(k)+S1 shallow;kernel=power,scattering;quantity=0;order=1;scenario=shallow;every=3'
+# The Fisher comparison, one table per scenario: the same columns for each, so a new
+# statistic is one more line in columns(). S2 keeps δ = l2 − l1 = 0 (l2=-1 is S1's); scattering
+# leaves out the smallest scale j1 = 0, which the wedge scenarios empty (only rounding residue is left).
+columns() {
+    local s=$1
+    printf '%s\n' \
+        "--select" "name=P(k);kernel=power;quantity=0;scenario=$s;every=2" \
+        "--select" "name=S1;kernel=scattering;order=1;j1=1:;scenario=$s;every=3" \
+        "--select" "name=S1+S2;kernel=scattering;order=1,2;l2=-1,0;j1=1:;scenario=$s;every=5" \
+        "--select" "name=P(k)+S1;kernel=power,scattering;quantity=0;order=1;j1=1:;scenario=$s;every=3" \
+        "--select" "name=P(k)+S1+S2;kernel=power,scattering;quantity=0;order=1,2;l2=-1,0;j1=1:;scenario=$s;every=5"
+}
+step "Fisher forecasts: which statistic constrains the sources best, clean and under each instrument"
+for s in clean nextgen_1000h nextgen_1000h_wedge current_1000h_wedge; do
+    echo; echo "-- scenario $s"
+    mapfile -t sel < <(columns "$s")
+    extra=()
+    # The cadence comparison: S1 of every slice against every third one (clean cone).
+    [[ $s == clean ]] && extra=(--select "name=S1 every slice;kernel=scattering;order=1;j1=1:;scenario=$s;every=1")
+    "$spinflip" fisher "$out/demo.h5" -o "$out/fisher_$s.h5" --combined "${sel[@]}" "${extra[@]}" \
+        | tee "$out/fisher_$s.txt"
+    # The table must come from invertible covariances: no inf, no negative Hartlap factor.
+    if grep -Eq '\binf\b|Hartlap factor +\| *-' "$out/fisher_$s.txt"; then
+        echo "demo: the Fisher table of $s holds inf or a negative Hartlap factor" >&2
+        exit 1
+    fi
+done
 
 step "training set for an emulator (split by design point) -> $out/train.h5"
 "$spinflip" export "$out/demo.h5" -o "$out/train.h5" \
-    --select 'name=deep;kernel=power,scattering;quantity=0;order=1;scenario=deep;every=3'
+    --select 'name=nextgen wedge;kernel=power,scattering;quantity=0;order=1;scenario=nextgen_1000h_wedge;every=3'
 
 step "a Slurm job chain for the same campaign -> $out/jobs"
 "$spinflip" jobscript "$campaign" --walltime 01:00:00 --chain 4 -o "$out/jobs/" --catalogue "$out/demo.h5"

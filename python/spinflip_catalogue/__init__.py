@@ -93,7 +93,7 @@ class Stats:
     kernel: str
     values: np.ndarray  # (n_selected_entries, n_units, n_coeff)
     entries: np.ndarray  # entry indices of the rows
-    axes: dict  # axis name → (n_coeff,) array
+    axes: dict  # axis name → (n_coeff,) array; "<axis>_by_unit" → (n_units, n_coeff) (observed scenarios)
     unit_freq_MHz: np.ndarray
     unit_z: np.ndarray
     attrs: dict = field(default_factory=dict)

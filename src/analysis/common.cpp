@@ -5,7 +5,9 @@
 #include <algorithm>
 #include <chrono>
 #include <cmath>
+#include <cstdio>
 #include <cstdlib>
+#include <limits>
 #include <ctime>
 #include <filesystem>
 #include <map>
@@ -104,7 +106,7 @@ std::vector<Selection> selections(const Catalogue& cat, const std::vector<std::s
 }
 
 void drop_degenerate(const Catalogue& cat, Selection& sel, Eigen::MatrixXd& reference,
-                     std::vector<Eigen::MatrixXd*> others) {
+                     std::vector<Eigen::MatrixXd*> others, bool drop_constant, const std::string& what) {
   const auto labels = element_labels(cat, sel);
   std::vector<Eigen::Index> keep;
   std::size_t n_nan = 0, n_const = 0;
@@ -120,7 +122,7 @@ void drop_degenerate(const Catalogue& cat, Selection& sel, Eigen::MatrixXd& refe
     if (nan > 0 || partial_other)
       throw InputError(cat.path() + ": coefficient " + labels[static_cast<std::size_t>(c)] +
                        " is NaN in some done entries only; exclude it with an axis filter in --select '" + sel.text + "'");
-    if (col.maxCoeff() == col.minCoeff()) {
+    if (drop_constant && col.maxCoeff() == col.minCoeff()) {
       ++n_const;
       continue;
     }
@@ -128,13 +130,33 @@ void drop_degenerate(const Catalogue& cat, Selection& sel, Eigen::MatrixXd& refe
   }
   if (n_nan + n_const == 0) return;
   if (keep.empty())
-    throw InputError("--select '" + sel.text + "': every selected coefficient is NaN or constant over the fiducial "
-                     "realisations, so there is nothing to analyse");
+    throw InputError("--select '" + sel.text + "': every selected coefficient is NaN or constant over the " + what +
+                     "s, so there is nothing to analyse");
   std::vector<Element> els;
   for (auto c : keep) els.push_back(sel.elements[static_cast<std::size_t>(c)]);
   sel.elements = std::move(els);
+  // One line naming them: NaN = a bin without a kept mode (DESIGN.md §5), constant = no information.
+  auto names = [&](bool want_nan) {
+    std::string out;
+    std::size_t listed = 0, total = 0;
+    for (Eigen::Index c = 0, k = 0; c < reference.cols(); ++c) {
+      if (k < static_cast<Eigen::Index>(keep.size()) && keep[static_cast<std::size_t>(k)] == c) {
+        ++k;
+        continue;
+      }
+      if (std::isnan(reference(0, c)) != want_nan) continue;
+      if (++total > 6) continue;
+      out += (listed++ ? "; " : "") + labels[static_cast<std::size_t>(c)];
+    }
+    if (total > listed) out += "; and " + std::to_string(total - listed) + " more";
+    return out;
+  };
   std::ostringstream note;
-  note << "dropped " << n_nan << " all-NaN and " << n_const << " constant coefficients (no information)";
+  note << "dropped";
+  if (n_nan) note << " " << n_nan << " NaN coefficients (NaN in every " << what << "; an instrument kept no mode of that bin): "
+                    << names(true);
+  if (n_nan && n_const) note << ";";
+  if (n_const) note << " " << n_const << " constant coefficients (no information): " << names(false);
   sel.notes.push_back(note.str());
   log::warn("selection '{}': {}", sel.name, note.str());
   auto compact = [&](Eigen::MatrixXd& m) {
@@ -203,6 +225,90 @@ std::string Transformer::describe() const {
     case Transform::standardise: return "standardise: (x - fiducial mean) / fiducial standard deviation";
     default: return "none";
   }
+}
+
+Conditioning conditioning(const Catalogue& cat, const Selection& sel, const Eigen::MatrixXd& cov, std::size_t n) {
+  Conditioning c;
+  c.covariance = condition_number(cov);
+  const Eigen::MatrixXd corr = correlation(cov);
+  c.correlation = corr.allFinite() ? condition_number(corr) : std::numeric_limits<double>::infinity();
+  const std::size_t p = static_cast<std::size_t>(cov.rows());
+  const auto labels = element_labels(cat, sel);
+  if (n <= p) {
+    c.cause = std::to_string(p) + " coefficients from " + std::to_string(n) +
+              " realisations: a sample covariance has rank at most n - 1 = " + std::to_string(n - 1);
+    return c;
+  }
+  // A coefficient whose spread is tiny next to the others of its kernel and quantity
+  // (e.g. a bin the instrument emptied that still holds rounding residue) makes the
+  // covariance singular in all but name, though its correlations look harmless.
+  const auto& blocks = cat.blocks();
+  {
+    std::map<std::pair<std::size_t, double>, std::vector<double>> groups;
+    auto group_of = [&](std::size_t a) {
+      const auto& e = sel.elements[a];
+      const auto q = blocks[e.block].axes.find("quantity");
+      return std::pair{e.block, q == blocks[e.block].axes.end() ? -1.0 : q->second[e.coeff]};
+    };
+    for (std::size_t a = 0; a < p; ++a) groups[group_of(a)].push_back(std::sqrt(cov(a, a)));
+    for (auto& [key, sds] : groups) std::sort(sds.begin(), sds.end());
+    for (std::size_t a = 0; a < p; ++a) {
+      const auto& sds = groups[group_of(a)];
+      const double median = sds[sds.size() / 2];
+      if (sds.size() >= 3 && !(std::sqrt(cov(a, a)) > 1e-6 * median)) {
+        c.cause = "coefficient " + labels[a] + " has (nearly) zero variance next to the rest of its kernel "
+                  "(a bin without kept modes from a catalogue made before observed modes? select it out)";
+        c.vanishing = true;
+        return c;
+      }
+    }
+  }
+  // P and delta2 of one bin and unit are the same modes weighted differently.
+  for (std::size_t a = 0; a < sel.elements.size(); ++a) {
+    const auto& ea = sel.elements[a];
+    const auto& b = blocks[ea.block];
+    const auto q = b.axes.find("quantity"), lo_k = b.axes.find("k_lo");
+    if (q == b.axes.end() || lo_k == b.axes.end() || b.kernel.find("bispectrum") != std::string::npos) continue;
+    for (std::size_t d = a + 1; d < sel.elements.size(); ++d) {
+      const auto& ed = sel.elements[d];
+      if (ed.block == ea.block && ed.unit == ea.unit && q->second[ea.coeff] != q->second[ed.coeff] &&
+          lo_k->second[ea.coeff] == lo_k->second[ed.coeff]) {
+        c.cause = "P and delta2 of the same bin are selected together (" + labels[a] + " and " + labels[d] +
+                  "): select one with quantity=0 or quantity=1";
+        return c;
+      }
+    }
+  }
+  // Otherwise name the coefficients that carry the near-null direction of the correlation.
+  if (corr.allFinite()) {
+    Eigen::SelfAdjointEigenSolver<Eigen::MatrixXd> es(corr);
+    const Eigen::VectorXd v = es.eigenvectors().col(0).cwiseAbs();
+    std::vector<Eigen::Index> order(static_cast<std::size_t>(v.size()));
+    for (Eigen::Index i = 0; i < v.size(); ++i) order[static_cast<std::size_t>(i)] = i;
+    std::sort(order.begin(), order.end(), [&](auto x, auto y) { return v(x) > v(y); });
+    c.cause = "nearly redundant coefficients: the weakest direction is mostly " +
+              labels[static_cast<std::size_t>(order[0])] +
+              (order.size() > 1 ? " against " + labels[static_cast<std::size_t>(order[1])] : std::string());
+  }
+  return c;
+}
+
+void check_conditioning(const Conditioning& c, const std::string& selection) {
+  char num[48];
+  if (std::isfinite(c.correlation)) std::snprintf(num, sizeof num, "%.3g", c.correlation);
+  else std::snprintf(num, sizeof num, "infinite (singular)");
+  if (c.vanishing)
+    throw InputError("selection '" + selection + "': " + c.cause + "; no forecast from a covariance that cannot be "
+                     "inverted: select fewer coefficients (an axis filter such as n_modes=1:), or pass --shrink");
+  if (c.correlation > max_condition || !std::isfinite(c.correlation)) {
+    char lim[32];
+    std::snprintf(lim, sizeof lim, "%.0e", max_condition);
+    throw InputError("selection '" + selection + "': correlation-matrix condition number " + num + " exceeds " + lim +
+                     " (" + c.cause + "); no forecast from a covariance that cannot be inverted: pass --shrink, "
+                     "select fewer coefficients (every=N, an axis filter), or run more fiducial realisations");
+  }
+  if (c.correlation > warn_condition)
+    log::warn("selection '{}': correlation-matrix condition number {} ({})", selection, num, c.cause);
 }
 
 void require_realisations(std::size_t n, std::size_t p, const std::string& selection, bool shrink) {

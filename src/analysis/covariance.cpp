@@ -1,5 +1,6 @@
 // spinflip covariance: mean, covariance, correlation and the de-biased inverse
 // of each selection's data vector over the fiducial realisations.
+#include <algorithm>
 #include <cstdio>
 #include <iostream>
 
@@ -40,10 +41,9 @@ void run_covariance(const CovarianceOptions& o) {
       cov = lw.cov;
       intensity = lw.intensity;
     }
-    const double cond = condition_number(cov);
-    if (cond > 1e8)
-      log::warn("selection '{}': condition number {:.3g}; some coefficients are nearly redundant (e.g. P and delta2 "
-                "of the same bins: select one with quantity=…)", sel.name, cond);
+    const auto conditioning = detail::conditioning(cat, sel, cov, n);
+    detail::check_conditioning(conditioning, sel.name);
+    const double cond = conditioning.covariance;
     // The Hartlap factor de-biases the inverse of a plain sample covariance
     // only; a shrunk estimate is not Wishart, so no factor is applied to it.
     const double hartlap = o.shrink ? 1.0 : hartlap_factor(n, p);
@@ -60,7 +60,8 @@ void run_covariance(const CovarianceOptions& o) {
     h5::write_attr(g.get(), "n_realisations", static_cast<std::int64_t>(n));
     h5::write_attr(g.get(), "n_data", static_cast<std::int64_t>(p));
     h5::write_attr(g.get(), "condition_number", cond);
-    h5::write_attr(g.get(), "hartlap_factor", o.shrink ? hartlap_factor(n, p) : hartlap);
+    h5::write_attr(g.get(), "correlation_condition_number", conditioning.correlation);
+    h5::write_attr(g.get(), "hartlap_factor", std::max(0.0, o.shrink ? hartlap_factor(n, p) : hartlap));
     h5::write_attr(g.get(), "hartlap_applied", static_cast<std::int64_t>(!o.shrink));
     h5::write_attr(g.get(), "shrinkage", std::string(o.shrink ? "ledoit-wolf-2004" : "none"));
     h5::write_attr(g.get(), "shrinkage_intensity", intensity);
@@ -81,8 +82,13 @@ void run_covariance(const CovarianceOptions& o) {
     detail::write_selection(g.get(), cat, sel);
     names.push_back(sel.name);
     std::printf("%s", selection_record(cat, sel).c_str());
-    std::printf("  realisations %zu, condition number %.4g, Hartlap factor %.4f%s%s\n", n, cond,
-                hartlap_factor(n, p), o.shrink ? " (not applied: shrunk)" : "",
+    // A Hartlap factor ≤ 0 (n ≤ p + 2) means no unbiased inverse exists: say so, never print it.
+    const double hf = hartlap_factor(n, p);
+    char hartlap_text[96];
+    if (hf > 0) std::snprintf(hartlap_text, sizeof hartlap_text, "%.4f", hf);
+    else std::snprintf(hartlap_text, sizeof hartlap_text, "undefined (needs n >= p + 3 = %zu)", p + 3);
+    std::printf("  realisations %zu, condition number %.4g (of the correlation matrix), Hartlap factor %s%s%s\n", n,
+                conditioning.correlation, hartlap_text, o.shrink ? " (not applied: shrunk)" : "",
                 have_precision ? "" : " — precision not written");
     if (o.shrink) std::printf("  Ledoit-Wolf shrinkage intensity %.4f\n", intensity);
   }

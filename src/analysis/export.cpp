@@ -99,6 +99,7 @@ void run_export(const ExportOptions& o) {
   for (auto s : e_split) ++counts[s];
   for (auto& sel : sels) {
     Eigen::MatrixXd X = cat.load(sel, entries);
+    detail::drop_degenerate(cat, sel, X, {}, false, "exported entry");  // bins without a kept mode
     if (X.hasNaN()) {
       // Name the first NaN cell and its cause in the kernel's terms.
       Eigen::Index r0 = -1, c0 = -1, n_cols = 0;

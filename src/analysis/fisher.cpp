@@ -180,9 +180,8 @@ FisherModel fisher_model(const Catalogue& cat, const Selection& sel_in, const St
     m.mean = m.fiducial.colwise().mean().transpose();
     std::tie(m.cov, m.hartlap) = external_covariance(cat, m.selection, m.transform.describe(), covariance_file);
   }
-  if (const double cond = condition_number(m.cov); cond > 1e8)
-    log::warn("{}: covariance condition number {:.3g}; some coefficients are nearly redundant (e.g. P and delta2 of "
-              "the same bins: select one with quantity=…)", what, cond);
+  m.conditioning = conditioning(cat, m.selection, m.cov, n);
+  check_conditioning(m.conditioning, m.selection.name);
   m.precision = m.hartlap * spd_inverse(m.cov, "the covariance of " + what);
   m.derivatives.resize(static_cast<Eigen::Index>(d), static_cast<Eigen::Index>(st.params.size()));
   for (std::size_t j = 0; j < st.params.size(); ++j) {
@@ -304,6 +303,7 @@ void run_fisher(const FisherOptions& o) {
     std::size_t n_data;
     double hartlap;
     std::vector<std::string> flags;
+    double condition = 0;  // of the correlation matrix
   };
   std::vector<Row> rows;
   std::vector<std::string> names;
@@ -318,7 +318,7 @@ void run_fisher(const FisherOptions& o) {
                               " parameters)";
     const Eigen::MatrixXd Finv = spd_inverse(m.fisher, fname);
     Row row{m.selection.name, Finv.diagonal().array().sqrt(), conditional_errors(m.fisher), {},
-            static_cast<std::size_t>(m.fiducial.cols()), m.hartlap, {}};
+            static_cast<std::size_t>(m.fiducial.cols()), m.hartlap, {}, m.conditioning.correlation};
     // Convergence: the same forecast from half the covariance realisations,
     // half the derivative realisations, and each other step size.
     std::vector<Check> checks;
@@ -367,6 +367,7 @@ void run_fisher(const FisherOptions& o) {
     h5::write_doubles(g.get(), "derivatives", flat(m.derivatives), {d, np});
     h5::write_doubles(g.get(), "mean", flat(m.mean), {d});
     h5::write_attr(g.get(), "hartlap_factor", m.hartlap);
+    h5::write_attr(g.get(), "correlation_condition_number", m.conditioning.correlation);
     h5::write_attr(g.get(), "n_realisations", static_cast<std::int64_t>(n));
     h5::write_attr(g.get(), "n_data", static_cast<std::int64_t>(d));
     h5::write_attr(g.get(), "transform", m.transform.describe());
@@ -438,6 +439,8 @@ void run_fisher(const FisherOptions& o) {
   for (const auto& r : rows) std::printf(" | %-*zu", w, r.n_data);
   std::printf("\n%-*s %-12s", w0, "Hartlap factor", "");
   for (const auto& r : rows) std::printf(" | %-*s", w, fmt(r.hartlap).c_str());
+  std::printf("\n%-*s %-12s", w0, "condition number", "");  // of the correlation matrix (docs/analysis.md)
+  for (const auto& r : rows) std::printf(" | %-*s", w, fmt(r.condition).c_str());
   std::printf("\n");
   bool any_flag = false;
   for (const auto& r : rows)

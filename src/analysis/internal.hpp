@@ -42,11 +42,36 @@ std::vector<std::string> campaign_selects(const Catalogue& cat);
 /// else one "all" selection.
 std::vector<Selection> selections(const Catalogue& cat, const std::vector<std::string>& texts);
 
-/// Drop columns that are NaN in every row of `reference` or constant there
-/// (empty bins, k = 0 terms), noting them in the selection; a NaN in some rows
-/// only is an InputError. `others` lose the same columns.
+/// Drop columns that are NaN in every row of `reference` (bins without a kept mode,
+/// DESIGN.md §5) or, with drop_constant, constant there (k = 0 terms), with a one-line
+/// note naming them in the selection and the log; a NaN in some rows only is an
+/// InputError. `others` lose the same columns. `what` names a row in messages.
 void drop_degenerate(const Catalogue& cat, Selection& sel, Eigen::MatrixXd& reference,
-                     std::vector<Eigen::MatrixXd*> others);
+                     std::vector<Eigen::MatrixXd*> others, bool drop_constant = true,
+                     const std::string& what = "fiducial realisation");
+
+/// Condition number of the correlation matrix (scale-free: coefficients of very
+/// different sizes do not raise it) above which covariance and fisher refuse a
+/// selection (docs/analysis.md, "Conditioning"); above warn_condition they warn.
+inline constexpr double max_condition = 1e6;
+inline constexpr double warn_condition = 1e4;
+
+/// Condition numbers of a selection's covariance and its correlation matrix, and a
+/// one-line cause for a large one: more coefficients than realisations, a (near)
+/// zero-variance coefficient, P and delta2 of one bin together, or the coefficients
+/// that carry the near-null direction (each named).
+struct Conditioning {
+  double covariance = 0, correlation = 0;
+  std::string cause;
+  /// A coefficient whose spread is below 1e-6 of the median spread of its kernel (and
+  /// quantity) in the selection: rounding residue of an emptied bin, not a measurement.
+  /// Refused like an ill-conditioned correlation (its correlation hides it).
+  bool vanishing = false;
+};
+Conditioning conditioning(const Catalogue& cat, const Selection& sel, const Eigen::MatrixXd& cov, std::size_t n);
+/// Warn above warn_condition; above max_condition an InputError with the cause and the
+/// ways out (--shrink, fewer coefficients, more realisations).
+void check_conditioning(const Conditioning& c, const std::string& selection);
 
 /// Names cell (row, column) of a loaded data matrix for messages: the entry
 /// (point, realisation) and the coefficient (scenario/kernel, unit, axes).
@@ -114,6 +139,7 @@ struct FisherModel {
   Eigen::VectorXd mean;
   Eigen::MatrixXd cov, precision;    // precision includes the Hartlap factor (unless shrunk)
   double hartlap = 1;
+  Conditioning conditioning;         // of cov
   Eigen::MatrixXd derivatives;       // d × n_fisher_params at the chosen step
   Eigen::MatrixXd fisher;
   Transformer transform;

@@ -65,9 +65,10 @@ Filter parse_filter(const std::string& key, const std::string& value, const std:
   Filter f;
   f.key = key;
   if (value.find(':') != std::string::npos) {
-    auto parts = split(value, ':');
-    if (!value.empty() && value.back() == ':') parts.push_back("");  // "LO:" (getline drops a last empty field)
-    if (parts.size() != 2)
+    // Either side may be empty (an open range, e.g. n_modes=1:); split() would drop a trailing one.
+    const auto colon = value.find(':');
+    const std::vector<std::string> parts{value.substr(0, colon), value.substr(colon + 1)};
+    if (value.find(':', colon + 1) != std::string::npos)
       throw InputError("--select '" + sel + "': " + key + "=" + value + " is not a range LO:HI");
     f.is_range = true;
     if (!parts[0].empty()) f.lo = number(parts[0], key, sel);

@@ -125,6 +125,8 @@ struct Setup {
   std::vector<std::unique_ptr<stats::Kernel>> kernels;
   std::vector<instrument::Unit> slices, chunks;
   stats::Geometry slice_geometry, chunk_geometry;
+  // Kept modes per scenario and unit (DESIGN.md §5 "Observed modes"): the same for every entry.
+  std::vector<std::vector<stats::KeptModes>> slice_kept, chunk_kept;
   catalogue::Layout layout;
 #ifdef SPINFLIP_HAVE_INGEST
   std::optional<ingest::Manifest> manifest;  // [ingest]: cones come from these files
@@ -169,7 +171,17 @@ struct Setup {
         throw ConfigError(cfg.location("stats." + k->name()) + ": [stats." + k->name() + "]: " + e.what());
       }
     }
+    for (const auto& s : scenarios) {
+      slice_kept.emplace_back();
+      chunk_kept.emplace_back();
+      for (const auto& u : slices) slice_kept.back().push_back(s.kept_modes(u, false, geometry));
+      for (const auto& u : chunks) chunk_kept.back().push_back(s.kept_modes(u, true, geometry));
+    }
     build_layout(c);
+  }
+
+  const stats::KeptModes& kept_of(const stats::Kernel& k, std::size_t scenario, std::size_t unit) const {
+    return (k.unit_kind() == stats::UnitKind::slice ? slice_kept : chunk_kept)[scenario][unit];
   }
 
   const std::vector<instrument::Unit>& units_of(const stats::Kernel& k) const {
@@ -177,6 +189,34 @@ struct Setup {
   }
   const stats::Geometry& geometry_of(const stats::Kernel& k) const {
     return k.unit_kind() == stats::UnitKind::slice ? slice_geometry : chunk_geometry;
+  }
+
+  /// The kernel's axes for one scenario: mode counts (n_modes, n_triangles) count kept
+  /// modes; as an axis, the fewest over the units (0 when a bin is empty in any unit),
+  /// and per unit in `<axis>_by_unit` (docs/catalogue.md).
+  std::vector<catalogue::Axis> kept_axes(const stats::Kernel& k, std::size_t scenario) const {
+    const auto& g = geometry_of(k);
+    std::vector<catalogue::Axis> out;
+    for (auto& a : k.axes(g)) out.push_back({a.name, a.values});
+    const std::size_t nu = units_of(k).size();
+    std::vector<std::vector<std::int64_t>> by_unit(out.size());
+    for (std::size_t u = 0; u < nu; ++u) {
+      const auto& kept = kept_of(k, scenario, u);
+      if (kept.all()) return out;  // a clean unit: counts are the kernel's own
+      const auto ax = k.axes_kept(g, kept);
+      for (std::size_t a = 0; a < out.size(); ++a) {
+        const auto* counts = std::get_if<std::vector<std::int64_t>>(&ax[a].values);
+        if (!counts || (ax[a].name != "n_modes" && ax[a].name != "n_triangles")) continue;
+        by_unit[a].insert(by_unit[a].end(), counts->begin(), counts->end());
+        auto& fewest = std::get<std::vector<std::int64_t>>(out[a].values);
+        for (std::size_t c = 0; c < fewest.size(); ++c) fewest[c] = u == 0 ? (*counts)[c] : std::min(fewest[c], (*counts)[c]);
+      }
+    }
+    std::vector<catalogue::Axis> per_unit;
+    for (std::size_t a = 0; a < out.size(); ++a)
+      if (!by_unit[a].empty()) per_unit.push_back({out[a].name + "_by_unit", by_unit[a]});
+    for (auto& a : per_unit) out.push_back(std::move(a));
+    return out;
   }
 
   void build_layout(const Campaign& c) {
@@ -204,7 +244,8 @@ struct Setup {
 #endif
     }
     L.history_z = geometry.z;
-    for (const auto& s : scenarios) {
+    for (std::size_t si = 0; si < scenarios.size(); ++si) {
+      const auto& s = scenarios[si];
       catalogue::ScenarioLayout sl;
       sl.name = s.name();
       sl.attributes = s.attributes();
@@ -214,7 +255,7 @@ struct Setup {
         kl.unit_kind = k->unit_kind() == stats::UnitKind::slice ? "slice" : "chunk";
         const auto& g = geometry_of(*k);
         kl.n_coeff = k->n_coeff(g);
-        for (auto& a : k->axes(g)) kl.axes.push_back({a.name, a.values});
+        kl.axes = kept_axes(*k, si);
         for (const auto& u : units_of(*k)) kl.unit_freq_MHz.push_back(u.freq_MHz), kl.unit_z.push_back(u.z);
         kl.attributes = k->attributes();
         sl.kernels.push_back(std::move(kl));
@@ -600,18 +641,25 @@ class Worker {
 
     result.values.resize(setup_.scenarios.size());
     for (std::size_t s = 0; s < setup_.scenarios.size(); ++s) {
-      core::Array3<float> observed = clean;
+      core::Array3<float> observed = clean, second;
       agreed([&] { setup_.scenarios[s].apply(observed, setup_.geometry, key); });
+      if (setup_.scenarios[s].settings().cross_power) {  // the independent second noise realisation
+        second = clean;
+        agreed([&] { setup_.scenarios[s].apply(second, setup_.geometry, key, true); });
+      }
       checkpoint();
       lap(times.instrument);
-      for (const auto& kernel : setup_.kernels) result.values[s].push_back(measure(*kernel, observed));
+      for (const auto& kernel : setup_.kernels)
+        result.values[s].push_back(measure(*kernel, s, observed, second.data.empty() ? nullptr : &second));
       checkpoint();
       lap(times.kernels);
     }
   }
 
   /// This rank's block of units, gathered in unit order on the group leader.
-  std::vector<double> measure(const stats::Kernel& k, const core::Array3<float>& observed) {
+  /// `second`: the second noise realisation of a cross_power scenario (else null).
+  std::vector<double> measure(const stats::Kernel& k, std::size_t scenario, const core::Array3<float>& observed,
+                              const core::Array3<float>* second) {
     const auto& units = setup_.units_of(k);
     const auto& g = setup_.geometry_of(k);
     const std::size_t nc = k.n_coeff(g), nu = units.size();
@@ -620,12 +668,15 @@ class Worker {
     agreed([&] {
       for (std::size_t u = begin; u < end; ++u) {
         std::vector<double> v;
+        const auto& kept = setup_.kept_of(k, scenario, u);
         if (k.unit_kind() == stats::UnitKind::slice) {
           const auto slice = instrument::extract_slice(observed, units[u]);
-          v = k.measure(slice.data.data(), g);
+          v = second ? k.measure_cross(slice.data.data(), instrument::extract_slice(*second, units[u]).data.data(), g, kept)
+                     : k.measure_kept(slice.data.data(), g, kept);
         } else {
           const auto chunk = instrument::extract_chunk(observed, units[u]);
-          v = k.measure(chunk.data.data(), g);
+          v = second ? k.measure_cross(chunk.data.data(), instrument::extract_chunk(*second, units[u]).data.data(), g, kept)
+                     : k.measure_kept(chunk.data.data(), g, kept);
         }
         if (v.size() != nc)
           throw InternalError("kernel " + k.name() + " returned " + std::to_string(v.size()) + " values, expected " +

@@ -169,6 +169,9 @@ class Creator {
   Handle dxpl_;
 };
 
+/// An axis with one value per unit and coefficient, stored (n_units, n_coeff).
+bool is_unit_axis(const Axis& a) { return a.name.size() > 8 && a.name.ends_with("_by_unit"); }
+
 void check_layout(const Layout& L) {
   auto bad = [](const std::string& what) { throw InternalError("catalogue layout: " + what); };
   const std::size_t np = L.parameters.size();
@@ -181,7 +184,8 @@ void check_layout(const Layout& L) {
       if (k.unit_freq_MHz.size() != k.unit_z.size()) bad(s.name + "/" + k.name + ": unit axes differ in length");
       for (const auto& a : k.axes) {
         std::size_t n = std::visit([](const auto& v) { return v.size(); }, a.values);
-        if (n != k.n_coeff) bad(s.name + "/" + k.name + "/" + a.name + " does not have n_coeff values");
+        if (n != (is_unit_axis(a) ? k.unit_z.size() : 1) * k.n_coeff)
+          bad(s.name + "/" + k.name + "/" + a.name + " does not have n_coeff (× n_units for *_by_unit) values");
       }
     }
 }
@@ -483,10 +487,11 @@ Catalogue Catalogue::create(const fs::path& path, const Layout& L, MPI_Comm comm
           for (const auto& a : k.axes) {
             if (a.name == "values" || a.name == "unit_freq_MHz" || a.name == "unit_z")
               throw InternalError("kernel " + k.name + " names an axis '" + a.name + "', a reserved name");
+            const std::vector<hsize_t> dims = is_unit_axis(a) ? std::vector<hsize_t>{nu, nc} : std::vector<hsize_t>{nc};
             if (const auto* d = std::get_if<std::vector<double>>(&a.values))
-              c.make(kg, a.name, H5T_NATIVE_DOUBLE, {nc}, *d);
+              c.make(kg, a.name, H5T_NATIVE_DOUBLE, dims, *d);
             else
-              c.make(kg, a.name, H5T_NATIVE_INT64, {nc}, std::get<std::vector<std::int64_t>>(a.values));
+              c.make(kg, a.name, H5T_NATIVE_INT64, dims, std::get<std::vector<std::int64_t>>(a.values));
           }
           std::vector<std::string> coeff_axes;
           for (const auto& a : k.axes) coeff_axes.push_back(a.name);

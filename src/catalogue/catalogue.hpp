@@ -27,7 +27,8 @@ inline constexpr std::size_t sha256_text_bytes = 64;
 enum class Status : std::int8_t { pending = 0, done = 1, failed = 2 };
 
 using Attribute = std::pair<std::string, core::Value>;
-/// One axis array of a kernel: one value per coefficient.
+/// One axis array of a kernel: one value per coefficient (per unit and coefficient,
+/// stored (n_units, n_coeff), when the name ends in "_by_unit").
 struct Axis {
   std::string name;
   std::variant<std::vector<double>, std::vector<std::int64_t>> values;

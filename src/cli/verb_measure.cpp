@@ -155,7 +155,10 @@ int run_measure(const std::string& input, const std::string& stats_file, const s
   // Validate every kernel against its unit before measuring anything.
   for (const auto& k : kernels) {
     if (k->unit_kind() == stats::UnitKind::chunk && !cube)
-      throw InputError(input + ": [stats." + k->name() + "] measures 3D chunks, but the array is 2D");
+      throw InputError(input + ": [stats." + k->name() + "] measures 3D chunks, but the array is 2D" +
+                       (k->name() == "power" ? "; for the 2D power spectrum of a slice use [stats.slice_power]"
+                        : k->name() == "bispectrum" ? "; for a slice use [stats.slice_bispectrum]"
+                        : k->name() == "chunk_moments" ? "; for a slice use [stats.moments]" : ""));
     k->check(k->unit_kind() == stats::UnitKind::chunk || !cube ? whole : slice);
   }
 

@@ -21,6 +21,12 @@ constexpr std::uint64_t noise_stream(std::uint32_t scenario_index) {
   return static_cast<std::uint64_t>(Stream::noise_base) + scenario_index;
 }
 
+/// The second, independent noise realisation of a scenario that asks for the
+/// noise-bias-free cross-power (docs/instrument.md).
+constexpr std::uint64_t cross_noise_stream(std::uint32_t scenario_index) {
+  return noise_stream(scenario_index) + (std::uint64_t{1} << 32);
+}
+
 struct EntryKey {
   std::uint64_t campaign_seed = 0;
   std::uint64_t point = 0;        // design point index (stencil points use the fiducial's)

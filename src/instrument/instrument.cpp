@@ -22,6 +22,7 @@
 
 #include "core/errors.hpp"
 #include "fft/fft.hpp"
+#include "instrument/internal.hpp"
 
 namespace spinflip::instrument {
 namespace {
@@ -71,6 +72,9 @@ void declare_keys(core::Schema& s) {
          .min = 0.0, .doc = "receiver temperature; T_sys = T_rcv + 60 K (ν/300 MHz)^-2.55"});
   s.add({.path = p + "noise", .type = ValueType::boolean, .default_value = false,
          .doc = "add a thermal-noise realisation (needs an array)"});
+  s.add({.path = p + "cross_power", .type = ValueType::boolean, .default_value = false,
+         .doc = "power spectra free of noise bias: the cross-power of two independent noise realisations of each "
+                "entry (needs noise = true; other kernels measure the first realisation)"});
   s.add({.path = p + "wedge", .type = ValueType::boolean, .default_value = false,
          .doc = "remove the foreground wedge k∥ < m(z) k⊥ + buffer on the LOS chunks"});
   s.add({.path = p + "taper", .type = ValueType::string, .default_value = std::string("none"),
@@ -394,7 +398,8 @@ std::array<float, 8> noise_normals(const rng::CounterRng& rng, std::uint64_t ind
 }
 }  // namespace
 
-void Scenario::apply(core::Array3<float>& cone, const ConeGeometry& g, const rng::EntryKey& key) const {
+void Scenario::apply(core::Array3<float>& cone, const ConeGeometry& g, const rng::EntryKey& key,
+                     bool second_noise) const {
   const std::size_t N = n_perp_, L = n_los_, H = N / 2 + 1, M = N * H, P = N * N;
   if (cone.shape != g.shape || g.shape[0] != N || g.shape[2] != L)
     throw InternalError("instrument: cone shape does not match the scenario's geometry");
@@ -426,7 +431,7 @@ void Scenario::apply(core::Array3<float>& cone, const ConeGeometry& g, const rng
 
   // uv mask and noise on the spectrum, with the normalisation of the inverse
   // transforms to come (1/N² transverse, and 1/len of a LOS chunk where one is made).
-  const rng::CounterRng rng(key, rng::noise_stream(index_));
+  const rng::CounterRng rng(key, second_noise ? rng::cross_noise_stream(index_) : rng::noise_stream(index_));
   const bool noise = settings_.noise && !uv_time_.empty();
   const float sqrt2 = std::sqrt(2.0f);
   const float inv_P = 1.0f / static_cast<float>(P);
@@ -487,12 +492,9 @@ void Scenario::apply(core::Array3<float>& cone, const ConeGeometry& g, const rng
     // mode cut entirely (most of large k⊥) is zeroed without transforms, and one not
     // cut at all is left alone; the rest are gathered, a block of modes at a time, into
     // the contiguous scratch, observed, transformed along the LOS, cut and put back.
-    const double dk_perp = 2.0 * std::numbers::pi / (static_cast<double>(N) * g.cell_mpc);
     std::vector<double> kperp(M);
     for (std::size_t i = 0; i < N; ++i)
-      for (std::size_t j = 0; j < H; ++j)
-        kperp[i * H + j] = dk_perp * std::hypot(static_cast<double>(core::fft_index(i, N)),
-                                                static_cast<double>(core::fft_index(j, N)));
+      for (std::size_t j = 0; j < H; ++j) kperp[i * H + j] = detail::transverse_k(i, j, N, g.cell_mpc);
     fftwf_complex* T = scratch.get();
     auto* Tc = reinterpret_cast<std::complex<float>*>(T);
     std::array<std::size_t, los_block> n_cut{}, row{};
@@ -512,11 +514,7 @@ void Scenario::apply(core::Array3<float>& cone, const ConeGeometry& g, const rng
           const std::size_t q = q0 + b;
           // |m| is cut when dk_par |m| < m(z) k⊥ + buffer (the same test as the docs'
           // k∥ < m(z) k⊥ + k_buffer); count the cut |m| = 0, 1, … from a first guess.
-          const double line = slope * kperp[q] + settings_.wedge_buffer_per_mpc;
-          const auto cut = [&](std::size_t f) { return dk_par * static_cast<double>(f) < line; };
-          std::size_t n = static_cast<std::size_t>(std::clamp(std::ceil(line / dk_par), 0.0, static_cast<double>(top + 1)));
-          while (n > 0 && !cut(n - 1)) --n;
-          while (n <= top && cut(n)) ++n;
+          const std::size_t n = detail::wedge_cut(slope * kperp[q] + settings_.wedge_buffer_per_mpc, dk_par, top);
           n_cut[b] = q == 0 ? top + 1 : n;  // k⊥ = 0: interferometers do not see the mean
           modes[b] = mode_of(q);
           group[b] = no_group;
@@ -633,6 +631,10 @@ std::vector<Scenario> build_scenarios(const core::Config& c, const std::function
     s.receiver_temperature_K = c.real(key(name, "receiver_temperature_K"));
     s.noise = c.boolean(key(name, "noise"));
     s.wedge = c.boolean(key(name, "wedge"));
+    s.cross_power = c.boolean(key(name, "cross_power"));
+    if (s.cross_power && !s.noise)
+      throw ConfigError(c.location(key(name, "cross_power")) + ": " + key(name, "cross_power") +
+                        " = true needs noise = true (without noise the two observations are the same cone)");
     s.wedge_angle_deg = c.real(key(name, "wedge_angle_deg"));
     s.wedge_buffer_per_mpc = c.real(key(name, "wedge_buffer_per_mpc"));
     s.taper = c.string(key(name, "taper"));
@@ -670,7 +672,7 @@ std::vector<Scenario> build_scenarios(const core::Config& c, const std::function
     }
     for (const char* leaf : {"array", "array_file", "stations", "station_diameter_m", "core_radius_m",
                              "outer_radius_m", "latitude_deg", "declination_deg", "hours_per_day", "integration_s",
-                             "observing_hours", "receiver_temperature_K", "noise", "wedge", "wedge_angle_deg",
+                             "observing_hours", "receiver_temperature_K", "noise", "cross_power", "wedge", "wedge_angle_deg",
                              "wedge_buffer_per_mpc", "taper", "taper_fwhm_wavelengths"})
       s.attributes.emplace_back(leaf, c.value(key(name, leaf)));
     auto coverage = s.array == "none" || !grid ? std::vector<std::vector<float>>{} : grid_coverage(stations, s, g);

@@ -16,6 +16,7 @@
 #include "core/array.hpp"
 #include "core/config.hpp"
 #include "core/rng.hpp"
+#include "stats/stats.hpp"
 
 namespace spinflip::cosmo { class Cosmology; }
 
@@ -53,6 +54,7 @@ struct Settings {
   double wedge_angle_deg = 90.0, wedge_buffer_per_mpc = 0.0;
   std::size_t chunk_cells = 0;  // wedge is cut on LOS chunks of this many cells
   std::string taper = "none";  // none | gaussian: imaging weight on the uv grid
+  bool cross_power = false;    // power from two independent noise realisations (no noise bias)
   double taper_fwhm_wavelengths = 1000.0;
   std::vector<std::pair<std::string, core::Value>> attributes;
 };
@@ -61,6 +63,8 @@ struct Settings {
 double wedge_slope(double distance_mpc, double hubble_km_s_mpc, double z, double angle_deg);
 /// T_sys = T_rcv + 60 K (ν/300 MHz)^-2.55 (common practice).
 double system_temperature_K(double receiver_K, double freq_MHz);
+
+struct Unit;
 
 class Scenario {
  public:
@@ -79,7 +83,12 @@ class Scenario {
   double taper_weight(std::size_t los_cell, std::size_t i, std::size_t j) const;
   /// rms (mK) of the real part of the noise on DFT mode (i,j) of LOS cell k, DFT = Σ_x T(x) e^{-ik·x}.
   double noise_sigma_mK(std::size_t los_cell, double uv_time_s) const;
-  void apply(core::Array3<float>& cone_mK, const ConeGeometry& geometry, const rng::EntryKey& key) const;
+  /// second_noise: draw the independent second noise realisation (cross_power scenarios).
+  void apply(core::Array3<float>& cone_mK, const ConeGeometry& geometry, const rng::EntryKey& key,
+             bool second_noise = false) const;
+  /// The Fourier modes this scenario keeps in a unit (DESIGN.md §5 "Observed modes";
+  /// docs/instrument.md): built once per campaign, the same for every entry.
+  stats::KeptModes kept_modes(const Unit& unit, bool chunk, const ConeGeometry& geometry) const;
 
  private:
   Settings settings_;

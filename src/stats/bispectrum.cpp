@@ -6,6 +6,7 @@
 // Shell fields are real (a shell is symmetric), so each is one c2r transform.
 #include <algorithm>
 #include <limits>
+#include <tuple>
 
 #include "fft/fft.hpp"
 #include "stats/internal.hpp"
@@ -86,9 +87,36 @@ class BispectrumKernel final : public Kernel {
     return {{"quantity", q}, {"k1", k1}, {"k2", k2}, {"k3", k3}, {"angle_deg", ang}, {"n_triangles", n}};
   }
 
-  std::vector<double> measure(const float* data, const Geometry& g) const override {
+  std::vector<double> measure(const float* data, const Geometry& g) const override { return estimate(data, g, nullptr); }
+
+  std::vector<double> measure_kept(const float* data, const Geometry& g, const KeptModes& kept) const override {
+    if (kept.all()) return measure(data, g);  // the clean path, byte for byte
+    const KeptView view(kept, g);
+    return estimate(data, g, &view);
+  }
+
+  std::vector<Axis> axes_kept(const Geometry& g, const KeptModes& kept) const override {
+    if (kept.all()) return axes(g);
+    check(g);
+    const KeptView view(kept, g);
+    const auto n_tri = closed_triangles(dims_of(g), *table(g), &view);
+    auto ax = axes(g);
+    for (auto& a : ax)
+      if (a.name == "n_triangles") {
+        auto& v = std::get<std::vector<std::int64_t>>(a.values);
+        for (std::size_t c = 0; c < v.size(); ++c) v[c] = std::llround(n_tri[c % tri_.size()]);
+      }
+    return ax;
+  }
+
+ private:
+  /// B and its normalised form; with `view`, shells hold kept modes only (a kept mode
+  /// weighs its taper weight in the unit field, so the normaliser counts what was kept).
+  std::vector<double> estimate(const float* data, const Geometry& g, const KeptView* view) const {
     check(g);
     auto t = table(g);
+    const std::vector<double> kept_tri = view ? closed_triangles(dims_of(g), *t, view) : std::vector<double>{};
+    const std::vector<double>& n_tri = view ? kept_tri : t->n_tri;
     const Dims d = dims_of(g);
     fft::Buffer<cf> f(d.n_half());
     fft::Buffer<float> copy;
@@ -105,15 +133,16 @@ class BispectrumKernel final : public Kernel {
       const float* r[3];
       double p[3];
       for (int s = 0; s < 3; ++s) {
-        const auto& sf = fields.get(ks[s], ks, [&](std::vector<float>& out) { return shell(d, *t, f, ks[s], out); });
+        const auto& sf =
+            fields.get(ks[s], ks, [&](std::vector<float>& out) { return shell(d, *t, f, ks[s], out, view); });
         r[s] = sf.field.data();
-        p[s] = sf.modes > 0 ? sf.power_sum * dv / n / sf.modes : nan;  // shell mean of P̂ = ΔV |F|² / N
+        p[s] = sf.modes > 0 ? sf.power_sum * dv / n / sf.norm : nan;  // shell mean of P̂ = ΔV |F|² / N
       }
       double sum = 0.0;
       for (std::size_t x = 0; x < d.n_real(); ++x)
         sum += static_cast<double>(r[0][x]) * static_cast<double>(r[1][x]) * static_cast<double>(r[2][x]);
       // Σ R1R2R3 = N Σ_closed F1F2F3 (R = unnormalised c2r); δ̃ = ΔV F.
-      b[i] = t->n_tri[i] > 0.5 ? sum / n * dv * dv * dv / t->n_tri[i] / volume : nan;
+      b[i] = n_tri[i] > 0.5 ? sum / n * dv * dv * dv / n_tri[i] / volume : nan;
       const double denom = p[0] * p[1] + p[1] * p[2] + p[2] * p[0];
       qn[i] = b[i] / denom;
     }
@@ -123,6 +152,8 @@ class BispectrumKernel final : public Kernel {
     return out;
   }
 
+
+ public:
   Attributes attributes() const override {
     std::vector<double> k1, k2, ang;
     for (auto& t : tri_) k1.push_back(t.k1), k2.push_back(t.k2), ang.push_back(t.angle_deg);
@@ -139,7 +170,7 @@ class BispectrumKernel final : public Kernel {
 
  private:
   struct ShellField {
-    double k = -1.0, modes = 0.0, power_sum = 0.0;
+    double k = -1.0, modes = 0.0, power_sum = 0.0, norm = 0.0;
     std::vector<float> field;
   };
   /// The last three shell fields, so triangles sharing a shell transform it once.
@@ -154,9 +185,10 @@ class BispectrumKernel final : public Kernel {
       for (auto& s : slot)
         if (s.k != pinned[0] && s.k != pinned[1] && s.k != pinned[2]) victim = &s;
       victim->k = k;
-      auto [modes, power] = make(victim->field);
+      const auto [modes, power, norm] = make(victim->field);
       victim->modes = modes;
       victim->power_sum = power;
+      victim->norm = norm;
       return *victim;
     }
   };
@@ -176,19 +208,23 @@ class BispectrumKernel final : public Kernel {
 
   bool in_shell(float kk, double k) const { return kk > 0.0f && std::abs(kk - k) < 0.5 * fraction_ * k; }
 
-  /// Unnormalised c2r of F (or of 1 when f is null) on shell k; returns (full-grid modes, Σ w|F|²).
-  std::pair<double, double> shell(const Dims& d, const Table& t, const fft::Buffer<cf>& f, double k,
-                                  std::vector<float>& out) const {
+  /// Unnormalised c2r of F (or of 1 when f is empty) on shell k, kept modes only when
+  /// `view` is given (the unit field is then the taper weight); returns (full-grid modes,
+  /// Σ w|F|², Σ w·weight²: the normaliser of the shell-averaged power).
+  std::tuple<double, double, double> shell(const Dims& d, const Table& t, const fft::Buffer<cf>& f, double k,
+                                           std::vector<float>& out, const KeptView* view = nullptr) const {
     fft::Buffer<cf> work(d.n_half());
-    double modes = 0.0, power = 0.0;
+    double modes = 0.0, power = 0.0, norm = 0.0;
     std::size_t idx = 0;
     for (std::size_t ij = 0; ij < d.n0 * d.n1; ++ij)
       for (std::size_t l = 0; l < d.h2; ++l, ++idx) {
-        if (in_shell(t.k[idx], k)) {
-          const cf v = f.size() ? f[idx] : cf(1.0f, 0.0f);
+        if (in_shell(t.k[idx], k) && (!view || view->keeps(ij, l))) {
+          const double w2 = view ? view->weight2(ij, l) : 1.0;
+          const cf v = f.size() ? f[idx] : cf(static_cast<float>(std::sqrt(w2)), 0.0f);
           work[idx] = v;
           const double w = half_plane_weight(l, d.n2);
           modes += w;
+          norm += w * w2;
           power += w * std::norm(std::complex<double>(v));
         } else {
           work[idx] = cf(0.0f, 0.0f);
@@ -198,7 +234,26 @@ class BispectrumKernel final : public Kernel {
     fft::Buffer<float> real(d.n_real());
     inverse(d, work.data(), real.data());
     std::copy(real.data(), real.data() + d.n_real(), out.begin());
-    return {modes, power};
+    return {modes, power, norm};
+  }
+
+  /// Σ_x J1 J2 J3 / N per triangle: the closed triangles of unit fields on the shells.
+  std::vector<double> closed_triangles(const Dims& d, const Table& t, const KeptView* view) const {
+    const fft::Buffer<cf> unit;  // empty: the unit field
+    ShellFields fields;
+    std::vector<double> out;
+    for (const auto& tr : tri_) {
+      const double ks[3] = {tr.k1, tr.k2, tr.k3};
+      const float* r[3];
+      for (int s = 0; s < 3; ++s)
+        r[s] = fields.get(ks[s], ks, [&](std::vector<float>& o) { return shell(d, t, unit, ks[s], o, view); })
+                   .field.data();
+      double sum = 0.0;
+      for (std::size_t x = 0; x < d.n_real(); ++x)
+        sum += static_cast<double>(r[0][x]) * static_cast<double>(r[1][x]) * static_cast<double>(r[2][x]);
+      out.push_back(sum / static_cast<double>(d.n_real()));
+    }
+    return out;
   }
 
   std::shared_ptr<const Table> table(const Geometry& g) const {
@@ -206,19 +261,7 @@ class BispectrumKernel final : public Kernel {
       const Dims d = dims_of(g);
       Table t;
       t.k = mode_k(d);
-      const fft::Buffer<cf> unit;  // empty: the unit field
-      ShellFields fields;
-      for (const auto& tr : tri_) {
-        const double ks[3] = {tr.k1, tr.k2, tr.k3};
-        const float* r[3];
-        for (int s = 0; s < 3; ++s)
-          r[s] = fields.get(ks[s], ks, [&](std::vector<float>& out) { return shell(d, t, unit, ks[s], out); })
-                     .field.data();
-        double sum = 0.0;
-        for (std::size_t x = 0; x < d.n_real(); ++x)
-          sum += static_cast<double>(r[0][x]) * static_cast<double>(r[1][x]) * static_cast<double>(r[2][x]);
-        t.n_tri.push_back(sum / static_cast<double>(d.n_real()));
-      }
+      t.n_tri = closed_triangles(d, t, nullptr);
       return t;
     });
   }

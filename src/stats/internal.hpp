@@ -47,6 +47,26 @@ inline const float* aligned(const float* data, std::size_t n, fft::Buffer<float>
   return keep.data();
 }
 
+/// Kept-mode lookup on the r2c half grid of a unit seen as rows × h2 (a chunk's rows are
+/// its transverse cells, the half axis is the line of sight; a slice is one row of
+/// transverse cells per index of axis 0, the half axis its axis 1). The mirror of a
+/// half-grid mode has the same entry: the uv coverage is Hermitian (conjugate visibilities).
+struct KeptView {
+  const KeptModes& kept;
+  bool two_d;
+  std::size_t n2;  // full length of the half axis
+  KeptView(const KeptModes& k, const Geometry& g);
+  std::size_t cell(std::size_t row, std::size_t kk) const { return two_d ? row * n2 + kk : row; }
+  bool keeps(std::size_t row, std::size_t kk) const {
+    if (kept.kpar_cut.empty()) return true;
+    const auto c = kept.kpar_cut[cell(row, kk)];
+    return c != KeptModes::none && (two_d || kk >= c);
+  }
+  double weight2(std::size_t row, std::size_t kk) const {
+    return kept.weight2.empty() ? 1.0 : static_cast<double>(kept.weight2[cell(row, kk)]);
+  }
+};
+
 /// InputError "<kernel>: needs a <2D|3D> unit, got shape (a, b, c)".
 void require_dims(const std::string& kernel, const Geometry& g, UnitKind kind);
 std::string shape_text(const std::vector<std::size_t>& shape);

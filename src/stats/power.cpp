@@ -32,9 +32,10 @@ Dims dims_of(const Geometry& g) {
 /// Forward transform of a unit into the half grid (n0 n1 h2 complex). The result
 /// lives in a per-thread workspace reused by the next call on the same thread:
 /// a chunk's spectrum is ~70 MB and fresh pages cost as much as the binning.
-const fft::cfloat* transform(const float* input, const Geometry& g) {
+const fft::cfloat* transform(const float* input, const Geometry& g, int slot = 0) {
   thread_local fft::Buffer<float> copy;
-  thread_local fft::Buffer<fft::cfloat> out;
+  thread_local fft::Buffer<fft::cfloat> outs[2];  // slot 1: the second field of a cross-power
+  fft::Buffer<fft::cfloat>& out = outs[slot];
   const Dims d = dims_of(g);
   const float* data = input;
   if (reinterpret_cast<std::uintptr_t>(input) % 64 != 0) {  // FFTW plans by alignment: keep results bit-identical
@@ -63,6 +64,15 @@ std::vector<double> axis_k2(std::size_t n, double cell) {
 }
 
 const double nan = std::numeric_limits<double>::quiet_NaN();
+
+/// |F|² of one field, or Re(F_a F_b*) of two (the cross-power of independent noise
+/// realisations: the noise terms average to zero, the signal term is |F_signal|²).
+inline double mode_power(const fft::cfloat* fa, const fft::cfloat* fb, std::size_t idx) {
+  const std::complex<double> a(fa[idx]);
+  if (!fb) return std::norm(a);
+  const std::complex<double> b(fb[idx]);
+  return a.real() * b.real() + a.imag() * b.imag();
+}
 
 // ---------------------------------------------------------------- spherical
 // Along the half axis |k| grows with the index, so within one row (i, j) each bin is a
@@ -143,6 +153,36 @@ class PowerKernel final : public Kernel {
     return out;
   }
 
+  std::vector<double> measure_kept(const float* data, const Geometry& g, const KeptModes& kept) const override {
+    if (kept.all()) return measure(data, g);  // the clean path, byte for byte
+    check(g);
+    return over_kept(transform(data, g), nullptr, g, kept).values;
+  }
+
+  std::vector<double> measure_cross(const float* a, const float* b, const Geometry& g,
+                                    const KeptModes& kept) const override {
+    check(g);
+    const fft::cfloat* fa = transform(a, g, 0);
+    return over_kept(fa, transform(b, g, 1), g, kept).values;
+  }
+
+  std::vector<Axis> axes_kept(const Geometry& g, const KeptModes& kept) const override {
+    if (kept.all()) return axes(g);
+    check(g);
+    const auto counts = over_kept(nullptr, nullptr, g, kept);
+    auto ax = axes(g);
+    for (auto& a : ax) {
+      if (a.name == "k_mean") {
+        auto& v = std::get<std::vector<double>>(a.values);
+        for (std::size_t c = 0; c < v.size(); ++c) v[c] = counts.k_mean[c % bins()];
+      } else if (a.name == "n_modes") {
+        auto& v = std::get<std::vector<std::int64_t>>(a.values);
+        for (std::size_t c = 0; c < v.size(); ++c) v[c] = static_cast<std::int64_t>(counts.n_modes[c % bins()]);
+      }
+    }
+    return ax;
+  }
+
   Attributes attributes() const override {
     return {{"kernel", std::string(kind_ == UnitKind::chunk ? "spherical power spectrum" : "2D power spectrum")},
             {"bins", static_cast<std::int64_t>(bins())},
@@ -156,6 +196,45 @@ class PowerKernel final : public Kernel {
 
  private:
   std::size_t bins() const { return edges_.size() - 1; }
+
+  struct KeptResult {
+    std::vector<double> values, n_modes, k_mean;
+  };
+  /// P and delta2 over the kept modes of spectrum fa (cross with fb if given); with
+  /// fa null only the counts. Each kept mode counts once in n_modes and weighs its
+  /// squared taper weight in the normaliser, so a taper does not bias P low.
+  KeptResult over_kept(const fft::cfloat* fa, const fft::cfloat* fb, const Geometry& g, const KeptModes& kept) const {
+    auto t = table(g);
+    const Dims d = dims_of(g);
+    const KeptView view(kept, g);
+    const std::size_t nb = bins();
+    std::vector<double> p(nb, 0.0), dk(nb, 0.0), norm(nb, 0.0);
+    KeptResult r{std::vector<double>(2 * nb), std::vector<double>(nb, 0.0), std::vector<double>(nb, 0.0)};
+    for (std::size_t row = 0; row < d.n0 * d.n1; ++row) {
+      const std::uint32_t* seg = t->seg.data() + row * (nb + 1);
+      for (std::size_t b = 0; b < nb; ++b)
+        for (std::size_t k = seg[b]; k < seg[b + 1]; ++k) {
+          if (!view.keeps(row, k)) continue;
+          const double w = half_plane_weight(k, d.n2), kk = std::sqrt(t->row_k2[row] + t->axis_k2[k]);
+          r.n_modes[b] += w;
+          r.k_mean[b] += w * kk;
+          norm[b] += w * view.weight2(row, k);
+          if (!fa) continue;
+          const double p2 = w * mode_power(fa, fb, row * d.h2 + k);
+          p[b] += p2;
+          dk[b] += p2 * (d.two_d ? kk * kk : kk * kk * kk);
+        }
+    }
+    const double dv = cell_volume(g), n = static_cast<double>(g.n_cells());
+    const double delta_norm = d.two_d ? 1.0 / (2.0 * M_PI) : 1.0 / (2.0 * M_PI * M_PI);
+    for (std::size_t b = 0; b < nb; ++b) {
+      const bool any = r.n_modes[b] > 0;
+      r.k_mean[b] = any ? r.k_mean[b] / r.n_modes[b] : nan;
+      r.values[b] = any ? p[b] * dv / n / norm[b] : nan;
+      r.values[nb + b] = any ? dk[b] * dv / n / norm[b] * delta_norm : nan;
+    }
+    return r;
+  }
 
   std::shared_ptr<const SphericalTable> table(const Geometry& g) const {
     return cache_.get(key_of(g), [&] {
@@ -261,6 +340,32 @@ class CylindricalKernel final : public Kernel {
     return acc;
   }
 
+  std::vector<double> measure_kept(const float* data, const Geometry& g, const KeptModes& kept) const override {
+    if (kept.all()) return measure(data, g);  // the clean path, byte for byte
+    check(g);
+    return over_kept(transform(data, g), nullptr, g, kept).first;
+  }
+
+  std::vector<double> measure_cross(const float* a, const float* b, const Geometry& g,
+                                    const KeptModes& kept) const override {
+    check(g);
+    const fft::cfloat* fa = transform(a, g, 0);
+    return over_kept(fa, transform(b, g, 1), g, kept).first;
+  }
+
+  std::vector<Axis> axes_kept(const Geometry& g, const KeptModes& kept) const override {
+    if (kept.all()) return axes(g);
+    check(g);
+    const auto counts = over_kept(nullptr, nullptr, g, kept).second;
+    auto ax = axes(g);
+    for (auto& a : ax)
+      if (a.name == "n_modes") {
+        auto& v = std::get<std::vector<std::int64_t>>(a.values);
+        for (std::size_t c = 0; c < v.size(); ++c) v[c] = static_cast<std::int64_t>(counts[c]);
+      }
+    return ax;
+  }
+
   Attributes attributes() const override {
     return {{"kernel", std::string("cylindrical power spectrum")},
             {"kperp_bins", static_cast<std::int64_t>(np())},
@@ -276,6 +381,31 @@ class CylindricalKernel final : public Kernel {
  private:
   std::size_t np() const { return perp_.size() - 1; }
   std::size_t nq() const { return par_.size() - 1; }
+  /// (P per bin over kept modes, kept-mode count per bin); fa null: counts only.
+  std::pair<std::vector<double>, std::vector<double>> over_kept(const fft::cfloat* fa, const fft::cfloat* fb,
+                                                               const Geometry& g, const KeptModes& kept) const {
+    auto t = table(g);
+    const Dims d = dims_of(g);
+    const KeptView view(kept, g);
+    std::vector<double> acc(np() * nq(), 0.0), count(np() * nq(), 0.0), norm(np() * nq(), 0.0);
+    for (std::size_t ij = 0; ij < d.n0 * d.n1; ++ij) {
+      const std::int32_t a = t->perp_bin[ij];
+      if (a < 0) continue;
+      for (std::size_t k = 0; k < d.h2; ++k) {
+        const std::int32_t b = t->par_bin[k];
+        if (b < 0 || (ij == 0 && k == 0) || !view.keeps(ij, k)) continue;
+        const std::size_t c = static_cast<std::size_t>(a) * nq() + static_cast<std::size_t>(b);
+        const double w = half_plane_weight(k, d.n2);
+        count[c] += w;
+        norm[c] += w * view.weight2(ij, k);
+        if (fa) acc[c] += w * mode_power(fa, fb, ij * d.h2 + k);
+      }
+    }
+    const double dv = cell_volume(g), n = static_cast<double>(g.n_cells());
+    for (std::size_t c = 0; c < acc.size(); ++c) acc[c] = count[c] > 0 ? acc[c] * dv / n / norm[c] : nan;
+    return {acc, count};
+  }
+
   static std::int32_t find_bin(const std::vector<double>& e, double k) {
     if (k < e.front() || k >= e.back()) return -1;
     return static_cast<std::int32_t>(std::upper_bound(e.begin(), e.end(), k) - e.begin() - 1);
@@ -313,6 +443,7 @@ std::unique_ptr<Kernel> make_power(const core::Config& c, const std::string& t, 
   const double lo = c.real(t + ".k_min_mpc"), hi = c.real(t + ".k_max_mpc");
   if (hi <= lo) c.fail(t + ".k_max_mpc", "must be larger than " + t + ".k_min_mpc = " + std::to_string(lo));
   const bool log_bins = c.boolean(t + ".log_bins");
+  if (log_bins && lo <= 0.0) c.fail(t + ".k_min_mpc", "must be > 0 with log_bins = true (0 is allowed for linear bins)");
   const auto name = t.substr(t.find('.') + 1);
   return std::make_unique<PowerKernel>(name, kind, bin_edges(lo, hi, c.integer(t + ".bins"), log_bins), log_bins);
 }
@@ -322,6 +453,8 @@ std::unique_ptr<Kernel> make_cylindrical(const core::Config& c) {
   const bool log_bins = c.boolean(t + ".log_bins");
   auto edges = [&](const std::string& axis) {
     const double lo = c.real(t + "." + axis + "_min_mpc"), hi = c.real(t + "." + axis + "_max_mpc");
+    if (log_bins && lo <= 0.0)
+      c.fail(t + "." + axis + "_min_mpc", "must be > 0 with log_bins = true (0 is allowed for linear bins)");
     if (hi <= lo)
       c.fail(t + "." + axis + "_max_mpc", "must be larger than " + axis + "_min_mpc = " + std::to_string(lo));
     return bin_edges(lo, hi, c.integer(t + "." + axis + "_bins"), log_bins);

@@ -15,7 +15,7 @@ void declare_power(core::Schema& s, const std::string& t, const std::string& wha
   s.add({.path = t + ".bins", .type = ValueType::integer, .default_value = std::int64_t{12}, .min = 1, .max = 100000,
          .doc = "number of |k| bins"});
   s.add({.path = t + ".k_min_mpc", .type = ValueType::real, .default_value = 0.05, .unit = unit, .min = 0.0,
-         .min_exclusive = true, .doc = "lower edge of the first bin"});
+         .doc = "lower edge of the first bin (0 allowed with linear bins)"});
   s.add({.path = t + ".k_max_mpc", .type = ValueType::real, .default_value = 2.0, .unit = unit, .min = 0.0,
          .min_exclusive = true, .doc = "upper edge of the last bin"});
   s.add({.path = t + ".log_bins", .type = ValueType::boolean, .default_value = true,
@@ -58,11 +58,11 @@ void declare_keys(core::Schema& s) {
   s.add({.path = c + ".kpar_bins", .type = ValueType::integer, .default_value = std::int64_t{8}, .min = 1,
          .max = 10000, .doc = "number of k_par bins"});
   s.add({.path = c + ".kperp_min_mpc", .type = ValueType::real, .default_value = 0.05, .unit = "1/Mpc", .min = 0.0,
-         .min_exclusive = true, .doc = "lower edge of the first k_perp bin"});
+         .doc = "lower edge of the first k_perp bin (0 allowed with linear bins)"});
   s.add({.path = c + ".kperp_max_mpc", .type = ValueType::real, .default_value = 1.0, .unit = "1/Mpc", .min = 0.0,
          .min_exclusive = true, .doc = "upper edge of the last k_perp bin"});
   s.add({.path = c + ".kpar_min_mpc", .type = ValueType::real, .default_value = 0.05, .unit = "1/Mpc", .min = 0.0,
-         .min_exclusive = true, .doc = "lower edge of the first k_par bin"});
+         .doc = "lower edge of the first k_par bin (0 allowed with linear bins: the k_par = 0 plane)"});
   s.add({.path = c + ".kpar_max_mpc", .type = ValueType::real, .default_value = 2.0, .unit = "1/Mpc", .min = 0.0,
          .min_exclusive = true, .doc = "upper edge of the last k_par bin"});
   s.add({.path = c + ".log_bins", .type = ValueType::boolean, .default_value = true,
@@ -140,6 +140,15 @@ std::vector<double> bin_edges(double lo, double hi, std::size_t bins, bool log_b
   }
   e[bins] = hi;
   return e;
+}
+
+KeptView::KeptView(const KeptModes& k, const Geometry& g)
+    : kept(k), two_d(g.shape.size() == 2), n2(g.shape.back()) {
+  const std::size_t cells = g.shape[0] * g.shape[1];
+  if ((!k.kpar_cut.empty() && k.kpar_cut.size() != cells) || (!k.weight2.empty() && k.weight2.size() != cells))
+    throw InternalError("kept modes: " + std::to_string(k.kpar_cut.size()) + " cut and " +
+                        std::to_string(k.weight2.size()) + " weight entries for a unit of " + std::to_string(cells) +
+                        " transverse cells " + shape_text(g.shape));
 }
 
 std::string shape_text(const std::vector<std::size_t>& shape) {

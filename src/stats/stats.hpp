@@ -40,6 +40,24 @@ struct Axis {
   std::variant<std::vector<double>, std::vector<std::int64_t>> values;
 };
 
+/// The Fourier modes an instrument kept in one unit (DESIGN.md §5 "Observed modes";
+/// docs/stats.md). Compact: one entry per transverse Fourier cell (axes 0, 1 of a
+/// chunk, both axes of a slice; full n0 × n1 grid, fftfreq order), never one per mode.
+/// A default-constructed description keeps every mode (a clean unit).
+struct KeptModes {
+  static constexpr std::uint16_t none = 0xFFFF;
+  /// Smallest |m∥| kept along the line of sight (a chunk's axis 2, k∥ = 2π m∥ / (n2 Δ2)) in
+  /// each transverse cell: 0 keeps every k∥, `none` keeps nothing there. A slice has no
+  /// k∥: it keeps a cell whose entry is not `none`. Empty: every cell keeps every k∥.
+  std::vector<std::uint16_t> kpar_cut;
+  /// Mean squared taper weight of each transverse cell (empty: 1, no taper).
+  std::vector<float> weight2;
+  /// The analytic wedge line the cut came from, k∥ < slope k⊥ + buffer (0, 0: no wedge).
+  double wedge_slope = 0.0, wedge_buffer_per_mpc = 0.0;
+  bool all() const { return kpar_cut.empty() && weight2.empty(); }
+  bool operator==(const KeptModes&) const = default;
+};
+
 /// Configuration stored beside the values (HDF5 group attributes).
 using Attributes = std::vector<std::pair<std::string, core::Value>>;
 
@@ -57,6 +75,25 @@ class Kernel {
   /// `data` holds g.n_cells() finite values in C order; returns n_coeff values.
   virtual std::vector<double> measure(const float* data, const Geometry& g) const = 0;
   virtual Attributes attributes() const = 0;
+  /// Fourier-space kernels (power, bispectrum) average over the modes in `kept` only and
+  /// return NaN for a bin without one; with an all-kept description they equal measure().
+  /// Real-space kernels see the observed field as it is: the default ignores `kept`.
+  virtual std::vector<double> measure_kept(const float* data, const Geometry& g, const KeptModes& kept) const {
+    (void)kept;
+    return measure(data, g);
+  }
+  /// Noise-bias-free cross-power of two observations of one field (independent noise):
+  /// power kernels average Re(F_a F_b*) over kept modes; other kernels measure `a` alone.
+  virtual std::vector<double> measure_cross(const float* a, const float* b, const Geometry& g,
+                                            const KeptModes& kept) const {
+    (void)b;
+    return measure_kept(a, g, kept);
+  }
+  /// axes() with mode counts (n_modes, n_triangles) over the kept modes only.
+  virtual std::vector<Axis> axes_kept(const Geometry& g, const KeptModes& kept) const {
+    (void)kept;
+    return axes(g);
+  }
 };
 
 /// One kernel per [stats.*] table present in `config`, in declaration order.

@@ -3,6 +3,7 @@
 
 #include <cmath>
 #include <complex>
+#include <cstring>
 #include <filesystem>
 #include <fstream>
 #include <numbers>
@@ -10,6 +11,7 @@
 
 #include "core/errors.hpp"
 #include "instrument/instrument.hpp"
+#include "stats/stats.hpp"
 
 using namespace spinflip;
 using namespace spinflip::instrument;
@@ -439,4 +441,179 @@ TEST(BadInput, OneLineErrorsNamingTheKey) {
   auto c = core::Config::from_string("[scenarios.f]\narray = \"csv\"\narray_file = \"ok.csv\"\n",
                                      (dir / "campaign.toml").string(), the_schema());
   EXPECT_EQ(scenarios_from(c, toy_hubble, g).size(), 1u);
+}
+
+// ---------------------------------------------------------------- kept modes (DESIGN.md §5 "Observed modes")
+namespace {
+core::Config stats_config(const std::string& text) {
+  static const core::Schema s = [] {
+    core::Schema x;
+    declare_keys(x);
+    stats::declare_keys(x);
+    return x;
+  }();
+  return core::Config::from_string(text, "k.toml", s);
+}
+std::vector<std::int64_t> ints(const std::vector<stats::Axis>& axes, const std::string& name) {
+  for (const auto& a : axes)
+    if (a.name == name) return std::get<std::vector<std::int64_t>>(a.values);
+  return {};
+}
+}  // namespace
+
+// A wedge-cut cone: the spherical power's n_modes is lower than the clean count exactly in
+// the bins the wedge line crosses (brute force over the full grid with the analytic line
+// k∥ < m(z) k⊥ + b, DESIGN.md §5), equal elsewhere; a bin wholly inside the wedge is NaN
+// with n_modes 0; P is the mean of P̂ = ΔV |F|² / N over the kept modes (DESIGN.md §6).
+// The independent numpy check of the same is tests/stats/check_kept_modes.py.
+TEST(KeptModes, WedgeCutChunkCountsAndMeans) {
+  const std::size_t N = 32, L = 48;
+  const double cell = 3.0;
+  const auto g = make_geometry(N, L, cell, 8.0);
+  auto c = stats_config("[chunks]\nbandwidth_MHz = 3.0\n[scenarios.w]\narray = \"none\"\nwedge = true\n"
+                        "wedge_buffer_per_mpc = 0.05\n[stats.power]\nbins = 12\nk_min_mpc = 0.0\nk_max_mpc = 1.2\n"
+                        "log_bins = false\n[stats.cylindrical]\nkperp_bins = 6\nkperp_min_mpc = 0.0\n"
+                        "kperp_max_mpc = 0.6\nkpar_bins = 5\nkpar_min_mpc = 0.0\nkpar_max_mpc = 1.0\nlog_bins = false\n");
+  const auto sc = scenarios_from(c, toy_hubble, g);
+  const auto kernels = stats::kernels_from(c);
+  const auto& power = *kernels[0];
+  const auto& cylindrical = *kernels[1];
+  const auto units = chunk_units(c, g);
+  std::mt19937 gen(11);
+  std::normal_distribution<float> nd(0, 10);
+  core::Array3<float> cone(N, N, L);
+  for (auto& v : cone.data) v = nd(gen);
+  sc[0].apply(cone, g, {1, 0, 0});
+  int crossed = 0, empty = 0, untouched = 0;
+  for (const auto& u : units) {
+    const std::size_t len = u.los_end - u.los_begin, H = len / 2 + 1;
+    const stats::Geometry sg{{N, N, len}, {cell, cell, cell}};
+    const auto kept = sc[0].kept_modes(u, true, g);
+    const auto clean_n = ints(power.axes(sg), "n_modes"), kept_n = ints(power.axes_kept(sg, kept), "n_modes");
+    const auto chunk = extract_chunk(cone, u);
+    const auto values = power.measure_kept(chunk.data.data(), sg, kept);
+    const double mid = static_cast<double>(u.los_begin + len / 2);
+    const auto k = static_cast<std::size_t>(mid);
+    const double slope = wedge_slope(g.distance_mpc[k], toy_hubble(g.z[k]), g.z[k], 90.0);
+    const auto F = fft3(chunk);
+    const std::size_t nb = 12;
+    std::vector<double> n_below(nb, 0), n_all(nb, 0), n_kept(nb, 0), sum(nb, 0);
+    std::vector<double> c_below(30, 0), c_all(30, 0), c_kept(30, 0);  // cylindrical, k⊥-major 6 × 5
+    for (std::size_t i = 0; i < N; ++i)
+      for (std::size_t j = 0; j < N; ++j)
+        for (long m = -static_cast<long>(len / 2); m < static_cast<long>((len + 1) / 2); ++m) {  // fftfreq values
+          const double dk = 2 * std::numbers::pi / (static_cast<double>(N) * cell);
+          const double kx = dk * static_cast<double>(core::fft_index(i, N)),
+                       ky = dk * static_cast<double>(core::fft_index(j, N)),
+                       kz = 2 * std::numbers::pi / (static_cast<double>(len) * cell) * static_cast<double>(m);
+          const double kk = std::sqrt(kx * kx + ky * ky + kz * kz), kperp = std::hypot(kx, ky);
+          if (kk == 0) continue;
+          const bool cut = kperp == 0 || std::abs(kz) < slope * kperp + 0.05;
+          if (kperp < 0.6 && std::abs(kz) < 1.0) {
+            const auto cb = static_cast<std::size_t>(kperp / 0.1) * 5 + static_cast<std::size_t>(std::abs(kz) / 0.2);
+            c_all[cb] += 1;
+            (cut ? c_below : c_kept)[cb] += 1;
+          }
+          if (kk >= 1.2) continue;
+          const auto b = static_cast<std::size_t>(kk / 0.1);
+          n_all[b] += 1;
+          if (kperp == 0 || std::abs(kz) < slope * kperp + 0.05) {
+            n_below[b] += 1;
+            continue;
+          }
+          n_kept[b] += 1;
+          // the mirror of a negative-k∥ mode on the half grid: conj at (-i, -j, |m|)
+          const std::size_t ii = m < 0 ? (N - i) % N : i, jj = m < 0 ? (N - j) % N : j;
+          const auto f = F[(ii * N + jj) * H + static_cast<std::size_t>(std::abs(m))];
+          sum[b] += std::norm(std::complex<double>(f)) * cell * cell * cell / static_cast<double>(N * N * len);
+        }
+    for (std::size_t b = 0; b < nb; ++b) {
+      EXPECT_EQ(clean_n[b], static_cast<std::int64_t>(n_all[b])) << "bin " << b;
+      EXPECT_EQ(kept_n[b], static_cast<std::int64_t>(n_kept[b])) << "bin " << b;
+      if (n_below[b] > 0) EXPECT_LT(kept_n[b], clean_n[b]) << "bin " << b;
+      else EXPECT_EQ(kept_n[b], clean_n[b]) << "bin " << b;
+      if (n_kept[b] == 0) {
+        EXPECT_TRUE(std::isnan(values[b])) << "bin " << b;
+        ++empty;
+      } else {
+        EXPECT_NEAR(values[b], sum[b] / n_kept[b], 1e-5 * sum[b] / n_kept[b]) << "bin " << b;  // float spectrum
+      }
+    }
+    // Cylindrical bins: k∥ ≥ m k⊥ + b keeps the upper left, the wedge empties the lower right.
+    const auto cyl_clean = ints(cylindrical.axes(sg), "n_modes"), cyl_kept = ints(cylindrical.axes_kept(sg, kept), "n_modes");
+    const auto cyl = cylindrical.measure_kept(chunk.data.data(), sg, kept);
+    for (std::size_t b = 0; b < 30; ++b) {
+      EXPECT_EQ(cyl_clean[b], static_cast<std::int64_t>(c_all[b])) << "cylindrical bin " << b;
+      EXPECT_EQ(cyl_kept[b], static_cast<std::int64_t>(c_kept[b])) << "cylindrical bin " << b;
+      if (c_below[b] > 0) {
+        EXPECT_LT(cyl_kept[b], cyl_clean[b]) << "cylindrical bin " << b;
+        ++crossed;
+      } else {
+        EXPECT_EQ(cyl_kept[b], cyl_clean[b]) << "cylindrical bin " << b;
+        ++untouched;
+      }
+      EXPECT_EQ(std::isnan(cyl[b]), c_kept[b] == 0) << "cylindrical bin " << b;
+    }
+  }
+  EXPECT_GT(crossed, 0);
+  EXPECT_GT(empty, 0);  // bin 0 (|k| < 0.1) lies wholly inside this wedge
+  EXPECT_GT(untouched, 0);
+}
+
+// Noise-bias-free power (common practice): on pure noise, the cross-power of the two
+// independent noise realisations of one entry averages to zero within its sampling
+// scatter, while the auto-power carries the noise power (whose value is checked against
+// the radiometer equation in ThermalNoise.PowerSpectrumMatchesAnalytic).
+TEST(KeptModes, CrossPowerOfPureNoiseIsZeroWithinScatter) {
+  const std::size_t N = 32, L = 32;
+  const auto g = make_geometry(N, L, 4.0, 8.0);
+  auto c = stats_config("[scenarios.n]\nnoise = true\ncross_power = true\nstations = 40\nintegration_s = 300\n"
+                        "[stats.power]\nbins = 6\nk_min_mpc = 0.05\nk_max_mpc = 0.6\n");
+  const auto sc = scenarios_from(c, toy_hubble, g);
+  ASSERT_TRUE(sc[0].settings().cross_power);
+  const auto kernels = stats::kernels_from(c);
+  const Unit whole{0, L, g.freq_MHz[L / 2], g.z[L / 2]};
+  const auto kept = sc[0].kept_modes(whole, true, g);
+  const stats::Geometry sg{{N, N, L}, {4.0, 4.0, 4.0}};
+  const int R = 24;
+  std::vector<double> cross(6, 0), cross2(6, 0), autop(6, 0);
+  for (int r = 0; r < R; ++r) {
+    core::Array3<float> a(N, N, L, 0.0f), b(N, N, L, 0.0f);
+    sc[0].apply(a, g, {3, 0, static_cast<std::uint64_t>(r)});
+    sc[0].apply(b, g, {3, 0, static_cast<std::uint64_t>(r)}, true);
+    ASSERT_NE(a.data, b.data);
+    const auto x = kernels[0]->measure_cross(a.data.data(), b.data.data(), sg, kept);
+    const auto p = kernels[0]->measure_kept(a.data.data(), sg, kept);
+    for (std::size_t k = 0; k < 6; ++k) {
+      cross[k] += x[k] / R;
+      cross2[k] += x[k] * x[k] / R;
+      autop[k] += p[k] / R;
+    }
+  }
+  int bins = 0;
+  for (std::size_t k = 0; k < 6; ++k) {
+    if (std::isnan(autop[k])) continue;
+    ++bins;
+    const double sigma_mean = std::sqrt((cross2[k] - cross[k] * cross[k]) / (R - 1));
+    EXPECT_LT(std::abs(cross[k]), 4.0 * sigma_mean) << "bin " << k;  // 4σ: sampling scatter of the mean
+    EXPECT_LT(std::abs(cross[k]), 0.1 * autop[k]) << "bin " << k;    // and far below the noise bias
+  }
+  EXPECT_GE(bins, 3);
+}
+
+// The clean path is untouched: an all-kept description gives measure() byte for byte.
+TEST(KeptModes, CleanDescriptionIsByteIdentical) {
+  auto c = stats_config("[stats.power]\n[stats.cylindrical]\n[stats.bispectrum]\nk1_mpc = [0.4]\nk2_mpc = [0.4]\n"
+                        "angle_deg = [120.0]\n");
+  std::mt19937 gen(2);
+  std::normal_distribution<float> nd(0, 1);
+  std::vector<float> x(16 * 16 * 24);
+  for (auto& v : x) v = nd(gen);
+  const stats::Geometry sg{{16, 16, 24}, {2.0, 2.0, 2.0}};
+  for (const auto& k : stats::kernels_from(c)) {
+    const auto a = k->measure(x.data(), sg), b = k->measure_kept(x.data(), sg, stats::KeptModes{});
+    ASSERT_EQ(a.size(), b.size());
+    for (std::size_t i = 0; i < a.size(); ++i)
+      EXPECT_TRUE(std::memcmp(&a[i], &b[i], sizeof(double)) == 0) << k->name() << " coefficient " << i;
+  }
 }

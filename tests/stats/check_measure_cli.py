@@ -109,6 +109,9 @@ with h5py.File(out, "r") as h:
 # --- user errors: exit status 2, one line
 expect_error("2D array with a 3D kernel", path("c.npy"), "3D chunks",
              "[stats.power]\nbins = 3\n")
+# DESIGN.md §6: [stats.power] on a 2D array points to the 2D analogue.
+expect_error("2D array with [stats.power]", path("c.npy"), "use [stats.slice_power]",
+             "[stats.power]\nbins = 3\n")
 nan = img.copy()
 nan[3, 4] = np.nan
 np.save(path("nan.npy"), nan)

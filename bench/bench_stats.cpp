@@ -30,17 +30,7 @@ using namespace spinflip;
 
 namespace {
 
-std::string measured_wisdom;
-bool measured_now = false;
-
-/// Plans for what follows: measured (kept as wisdom between switches), or FFTW_ESTIMATE.
-void use_plans(bool measured) {
-  if (measured == measured_now) return;
-  if (measured_now) measured_wisdom = fft::wisdom_text();
-  measured_now = measured;
-  fft::set_planning(measured ? fft::Planning{fft::Rigor::measure, 600} : fft::Planning{});
-  fft::use_wisdom(measured ? measured_wisdom : std::string(), "bench");
-}
+using bench::use_plans;
 
 std::unique_ptr<stats::Kernel> kernel(const std::string& toml) {
   static core::Schema schema = [] {

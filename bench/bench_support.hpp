@@ -9,6 +9,8 @@
 #include <string>
 #include <vector>
 
+#include "fft/planning.hpp"
+
 namespace spinflip::bench {
 
 class SecondsPerIteration : public benchmark::ConsoleReporter {
@@ -27,5 +29,17 @@ class SecondsPerIteration : public benchmark::ConsoleReporter {
  private:
   Clock clock_;
 };
+
+/// Plans for what follows: measured (kept as wisdom between switches), or FFTW_ESTIMATE,
+/// so one run times the same work with both and the fastest plan is the denominator.
+inline void use_plans(bool measured) {
+  static std::string measured_wisdom;
+  static bool measured_now = false;
+  if (measured == measured_now) return;
+  if (measured_now) measured_wisdom = fft::wisdom_text();
+  measured_now = measured;
+  fft::set_planning(measured ? fft::Planning{fft::Rigor::measure, 600} : fft::Planning{});
+  fft::use_wisdom(measured ? measured_wisdom : std::string(), "bench");
+}
 
 }  // namespace spinflip::bench
